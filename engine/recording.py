@@ -24,7 +24,7 @@ class QualityFinding:
 
     ``severity`` is ``"warning"`` (analysis goes on, the result says so) or ``"error"``
     (the channel cannot be analysed).  ``code`` is a stable short word: ``clipping``,
-    ``dc_offset``, ``flat``, ``non_finite``, ``uneven_time``, ``too_short``.
+    ``dc_offset``, ``flat``, ``non_finite``, ``uneven_time``, ``too_short``, ``truncated``.
     """
 
     code: str

@@ -1,0 +1,54 @@
+"""The ``shaftwatch`` command line.
+
+Every sub-command prints a human-readable table by default and JSON with ``--json``;
+errors go to stderr as one line naming the file and the problem, with exit status 2.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+
+from . import __version__
+from .commands import signal_cmds
+from .errors import EngineError
+
+CAUTION = (
+    "Vibration analysis supports decisions; it does not prove a machine safe. "
+    "ISO 20816 zone defaults are generic: the machine maker's limits, the site's "
+    "standards and local codes take precedence."
+)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="shaftwatch",
+        description="Shaftwatch: vibration condition monitoring of rotating machines.",
+        epilog=CAUTION,
+    )
+    parser.add_argument("--version", action="version", version=f"shaftwatch {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    sub.required = True
+    for module in (signal_cmds,):
+        module.register(sub)
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Run the command line; returns the exit status."""
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    try:
+        return int(args.func(args) or 0)
+    except EngineError as exc:
+        sys.stderr.write(f"shaftwatch {args.command}: error: {exc}\n")
+        return 2
+    except KeyboardInterrupt:
+        sys.stderr.write(f"shaftwatch {args.command}: cancelled\n")
+        return 130
+    except BrokenPipeError:
+        return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,1 @@
+"""Sub-commands of the ``shaftwatch`` command line, one module per family."""
