@@ -90,7 +90,7 @@ def test_levels_json_keys(tmp_path, capsys):
 
 def test_info_reports_channels_and_quality(tmp_path, capsys):
     clipped = np.clip(sine(60.0, 2.0), -0.9999, 0.9999)  # held at full scale
-    path = make_wav(tmp_path / "c.wav", [sine(60.0), clipped], bits=16, sample_format="int",
+    path = make_wav(tmp_path / "c.wav", [sine(60.0, 0.9), clipped], bits=16, sample_format="int",
                     full_scale=1.0)
     code, d = run_json(capsys, ["info", path])
     assert code == 0
