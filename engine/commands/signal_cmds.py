@@ -9,7 +9,7 @@ import numpy as np
 from ..levels import overall_levels
 from ..peaks import find_peaks
 from ..spectrum import AVERAGING, SCALES, Spectrum, SpectrumSettings, compute_spectrum
-from ..units import DEFAULT_LOW_CUT_HZ, unit
+from ..units import DEFAULT_LOW_CUT_HZ, integration_steps, unit
 from ..windows import WINDOWS
 from .common import (
     LoadedChannel,
@@ -67,7 +67,11 @@ def spectrum_of(ch: LoadedChannel, args: argparse.Namespace) -> Spectrum:
 def run_spectrum(args: argparse.Namespace) -> int:
     ch = load_channel(args)
     spec = spectrum_of(ch, args)
-    peaks = find_peaks(spec, count=args.peaks, rpm=ch.rpm)
+    # When integrating, the lines just above the low cut rise as 1/f towards the cut;
+    # their edge is not a machine's peak.
+    lowest = (args.low_cut + 3 * spec.resolution_hz
+              if integration_steps(ch.unit, spec.unit) > 0 else None)
+    peaks = find_peaks(spec, count=args.peaks, rpm=ch.rpm, min_frequency_hz=lowest)
     warnings = ch.warnings() + spec.warnings
     amplitude = spec.in_db() if args.db else spec.amplitude
     if args.output:
