@@ -217,6 +217,18 @@ def _window_dft(name: str, n: int, keep: int) -> tuple[np.ndarray, np.ndarray]:
     return idx, wf[idx]
 
 
+def _frame_means(x: np.ndarray, frame_length: int, step: int, n_frames: int) -> np.ndarray:
+    """Mean of each frame from one pass over the record (overlapping frames share
+    segments: each frame's sum is the sum of the segments between frame edges)."""
+    starts = np.arange(n_frames) * step
+    edges = np.unique(np.concatenate([starts, starts + frame_length]))
+    seg = np.add.reduceat(x[: edges[-1]], edges[:-1])
+    pos = np.searchsorted(edges, starts)
+    end = np.searchsorted(edges, starts + frame_length)
+    cum = np.concatenate(([0.0], np.cumsum(seg)))
+    return (cum[end] - cum[pos]) / frame_length
+
+
 def frame_count(n_samples: int, frame_length: int, step: int) -> int:
     """How many full frames of ``frame_length`` with hop ``step`` fit in a record."""
     return 0 if n_samples < frame_length else 1 + (n_samples - frame_length) // step
@@ -263,7 +275,7 @@ def averaged_power(
         spec = spec[:, :keep]
     if detrend == "constant":
         idx, wf = _window_dft(window, frame_length, keep)
-        spec[:, idx] -= frames.mean(axis=-1)[:, None] * wf[None, :]
+        spec[:, idx] -= _frame_means(x, frame_length, step, n_frames)[:, None] * wf[None, :]
     flat = spec.view(np.float64)
     if averaging == "linear":
         acc = np.einsum("ij,ij->j", flat, flat) / n_frames
