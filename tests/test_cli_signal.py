@@ -135,3 +135,20 @@ def test_help_everywhere(capsys):
             main([cmd, "--help"])
         assert exc.value.code == 0
     assert "--fmax" in capsys.readouterr().out
+
+
+def test_band_rms_and_band_waveform(tmp_path, capsys):
+    # Band RMS of two tones: each band holds one tone of RMS A/√2 (first principles).
+    path = make_wav(tmp_path / "two.wav", [sine(120.0, 1.0) + sine(900.0, 0.5)])
+    code, d = run_json(capsys, ["spectrum", path, "--lines", "1600", "--band", "100", "140",
+                                "--band", "850", "950"])
+    assert code == 0
+    assert d["bands"][0]["rms"] == pytest.approx(1 / np.sqrt(2), rel=0.005)
+    assert d["bands"][1]["rms"] == pytest.approx(0.5 / np.sqrt(2), rel=0.005)
+    out = tmp_path / "kept.wav"
+    code, d = run_json(capsys, ["band-waveform", path, "--band", "800", "1000", "-o", str(out)])
+    assert code == 0 and d["rms_out"] == pytest.approx(0.5 / np.sqrt(2), rel=1e-3)
+    code, d = run_json(capsys, ["levels", str(out)])
+    assert d["acceleration_peak_g"] == pytest.approx(0.5, rel=1e-3)
+    assert main(["band-waveform", path, "--band", "800", "1000", "-o",
+                 str(tmp_path / "x.flac")]) == 2

@@ -3,9 +3,16 @@
 from __future__ import annotations
 
 import argparse
+from dataclasses import replace
+from pathlib import Path
 
 import numpy as np
 
+from ..bandfilter import band_waveform
+from ..errors import InputError
+from ..io.csvfile import write_csv
+from ..io.wav import write_wav
+from ..recording import Recording
 from ..levels import overall_levels
 from ..peaks import find_peaks
 from ..spectrum import AVERAGING, SCALES, Spectrum, SpectrumSettings, compute_spectrum
@@ -78,8 +85,11 @@ def run_spectrum(args: argparse.Namespace) -> int:
         header = f"frequency_hz,{'level_db' if args.db else 'amplitude'}_{spec.scale}_{spec.unit}"
         np.savetxt(args.output, np.column_stack([spec.frequency_hz, amplitude]),
                    delimiter=",", header=header, comments="", fmt="%.9g")
+    bands = [{"low_hz": lo, "high_hz": hi, "rms": spec.band_rms(lo, hi), "unit": spec.unit}
+             for lo, hi in (args.band or [])]
     if args.json:
         d = spec.as_dict()
+        d["bands"] = bands
         d["amplitude"] = np.asarray(amplitude).tolist()
         d["db"] = bool(args.db)
         d["source"] = ch.source
@@ -108,7 +118,38 @@ def run_spectrum(args: argparse.Namespace) -> int:
             row.append(f"{p.order:.3f}×")
         rows.append(row)
     print_table(headers, rows)
+    if bands:
+        print()
+        print_table(["band Hz", f"RMS {spec.unit_label}"],
+                    [[f"{b['low_hz']:g}–{b['high_hz']:g}", b["rms"]] for b in bands])
     print_warnings(warnings)
+    return 0
+
+
+def run_band_waveform(args: argparse.Namespace) -> int:
+    ch = load_channel(args)
+    lo, hi = args.band
+    y = band_waveform(ch.samples, ch.fs_hz, (lo, hi), keep=not args.remove, source=ch.source)
+    out = Recording(fs_hz=ch.fs_hz, channels=[replace(ch.recording.channels[ch.index],
+                                                      samples=y, full_scale=None)],
+                    source=args.output, rpm=ch.rpm, taken=ch.recording.taken)
+    suffix = Path(args.output).suffix.lower()
+    if suffix == ".wav":
+        write_wav(args.output, out, bits=32, sample_format="float")
+    elif suffix in (".csv", ".tsv", ".txt"):
+        write_csv(args.output, out, with_time=True)
+    else:
+        raise InputError(f"{args.output}: output must end in .wav or .csv")
+    stats = {"output": args.output, "band_hz": [lo, hi], "kept": not args.remove,
+             "rms_in": float(np.std(ch.samples)), "rms_out": float(np.std(y)),
+             "unit": ch.unit}
+    if args.json:
+        emit_json(stats)
+    else:
+        print_pairs([("written", args.output),
+                     ("band", f"{lo:g}–{hi:g} Hz {'kept' if not args.remove else 'removed'}"),
+                     ("RMS before", f"{fmt(stats['rms_in'])} {ch.unit}"),
+                     ("RMS after", f"{fmt(stats['rms_out'])} {ch.unit}")])
     return 0
 
 
@@ -183,8 +224,21 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--peaks", type=int, default=10, metavar="K",
                    help="how many peaks to list, largest first (default 10)")
     p.add_argument("-o", "--output", metavar="FILE.csv", help="also write the spectrum to CSV")
+    p.add_argument("--band", type=float, nargs=2, action="append", metavar=("LO", "HI"),
+                   help="also give the RMS level in this band, Hz (repeatable)")
     add_json_option(p)
     p.set_defaults(func=run_spectrum)
+
+    p = sub.add_parser("band-waveform", help="keep or remove one band of a waveform",
+                       description="Band-limited inverse transform: write the waveform "
+                                   "with only one band kept (or removed) to WAV or CSV.")
+    add_input_options(p)
+    p.add_argument("--band", type=float, nargs=2, required=True, metavar=("LO", "HI"),
+                   help="band edges, Hz")
+    p.add_argument("--remove", action="store_true", help="remove the band instead of keeping it")
+    p.add_argument("-o", "--output", required=True, metavar="FILE", help="output .wav or .csv")
+    add_json_option(p)
+    p.set_defaults(func=run_band_waveform)
 
     p = sub.add_parser("levels", help="overall levels: velocity RMS, acceleration, crest factor",
                        description="Overall levels of one channel (ISO 20816-1 broadband "
