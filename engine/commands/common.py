@@ -19,9 +19,19 @@ UNIT_CHOICES = ", ".join(UNITS)
 
 
 def add_input_options(p: argparse.ArgumentParser, *, file_required: bool = True) -> None:
-    """Options that say how to read a recording file and which channel to analyse."""
+    """Options that say how to read a recording file and which channel to analyse.
+
+    With ``file_required`` the command takes a recording FILE, or a run of an archive
+    with ``--archive ARCHIVE --run RUN_ID`` instead (then the point's analysis settings
+    are the defaults of the spectrum options).
+    """
     if file_required:
-        p.add_argument("file", metavar="FILE", help="recording: .wav, .mat, .csv or .tsv")
+        p.add_argument("file", metavar="FILE", nargs="?",
+                       help="recording: .wav, .mat, .csv or .tsv (or give --archive and --run)")
+        a = p.add_argument_group("archive run (instead of FILE)")
+        a.add_argument("--archive", metavar="ARCHIVE", help="plant archive folder")
+        a.add_argument("--run", metavar="RUN_ID",
+                       help="run id in --archive (or a unique prefix of 6+ digits)")
     g = p.add_argument_group("input")
     g.add_argument("--channel", type=int, default=0, metavar="N",
                    help="channel to analyse, counted from 0 (default 0)")
@@ -64,8 +74,36 @@ class LoadedChannel:
                 if q.severity == "warning" and q.channel in (None, self.index)]
 
 
+#: Input options that only apply to reading a file, with their defaults.
+_FILE_ONLY = {"input_unit": "g", "sensitivity": None, "full_scale": None,
+              "sample_rate": None, "variable": None, "time_column": None}
+
+
+def _archive_run(args: argparse.Namespace):
+    """The run named by ``--archive``/``--run``: (Recording, point properties)."""
+    from ..archive import open_archive
+
+    if not (getattr(args, "archive", None) and getattr(args, "run", None)):
+        raise InputError("give both --archive ARCHIVE and --run RUN_ID")
+    if args.file is not None:
+        raise InputError(f"{args.file}: give a FILE or --archive with --run, not both")
+    given = [k for k, v in _FILE_ONLY.items() if getattr(args, k, v) != v]
+    if given:
+        raise InputError("--" + ", --".join(k.replace("_", "-") for k in given)
+                         + " apply to reading a file; a run in an archive is stored in its "
+                           "own unit")
+    with open_archive(args.archive) as arc:
+        rec, info = arc.read_run(arc.resolve_run(args.run))
+        point = arc.point(info.point)
+    return rec, point.props
+
+
 def read_input(args: argparse.Namespace) -> Recording:
-    """Read the recording named by ``args.file`` with the input options."""
+    """Read the recording named by ``args.file`` (or ``--archive``/``--run``)."""
+    if getattr(args, "archive", None) or getattr(args, "run", None):
+        return _archive_run(args)[0]
+    if args.file is None:
+        raise InputError("give a recording FILE, or --archive ARCHIVE --run RUN_ID")
     if args.input_unit is not None:
         unit(args.input_unit, source=args.file, field="--input-unit")
     sens = None
@@ -78,8 +116,28 @@ def read_input(args: argparse.Namespace) -> Recording:
 
 
 def load_channel(args: argparse.Namespace) -> LoadedChannel:
-    """Read the input and pick the channel; InputError when it cannot be analysed."""
-    rec = read_input(args)
+    """Read the input and pick the channel; InputError when it cannot be analysed.
+
+    For a run of an archive, spectrum options left at their defaults take the point's
+    analysis settings (Fmax, lines, window, averages, overlap).
+    """
+    if getattr(args, "archive", None) or getattr(args, "run", None):
+        from ..spectrum import SpectrumSettings
+
+        rec, props = _archive_run(args)
+        default = SpectrumSettings()
+        fmax = props.get("fmax_hz", math.nan)
+        averages = props.get("averages", 0)
+        for name, current, value in (
+                ("fmax", default.fmax_hz, None if math.isnan(fmax) else fmax),
+                ("lines", default.lines, props.get("lines")),
+                ("window", default.window, props.get("window")),
+                ("averages", default.averages, averages if averages else None),
+                ("overlap", default.overlap, props.get("overlap"))):
+            if hasattr(args, name) and getattr(args, name) == current and value is not None:
+                setattr(args, name, value)
+    else:
+        rec = read_input(args)
     ch = rec.channel(args.channel)
     errors = rec.errors(args.channel)
     if errors:

@@ -35,8 +35,8 @@ def main() -> int:
         scipy.fft.rfft(frames, axis=-1)
 
     ours(), bare()
-    ok = report(f"spectrum {lines} lines × {averages} averages", best_of(ours, 40),
-                best_of(bare, 40), 1.5, ref_name="bare rfft")
+    ok = report(f"spectrum {lines} lines × {averages} averages", best_of(ours, 200),
+                best_of(bare, 200), 1.5, ref_name="bare rfft")
     return 0 if ok else 1
 
 
