@@ -3,11 +3,12 @@
 from __future__ import annotations
 
 import argparse
+from dataclasses import replace
 
 import numpy as np
 
 from ..bearings import BearingGeometry, defect_frequencies_hz, defect_orders
-from ..envelope import defect_matches, envelope_spectrum
+from ..envelope import ENVELOPE_SETTINGS, defect_matches, envelope_spectrum
 from ..errors import InputError
 from ..orders import order_cut, order_spectrum
 from ..peaks import find_peaks
@@ -77,7 +78,9 @@ def run_envelope(args: argparse.Namespace) -> int:
     band = tuple(args.band) if args.band else None
     if band is not None and args.auto:
         raise InputError("give either --band LO HI or --auto, not both")
-    res = envelope_spectrum(ch.samples, ch.fs_hz, band_hz=band, unit="g", source=ch.source)
+    settings = replace(ENVELOPE_SETTINGS, fmax_hz=args.fmax, lines=args.lines)
+    res = envelope_spectrum(ch.samples, ch.fs_hz, band_hz=band, settings=settings, unit="g",
+                            source=ch.source)
     peaks = find_peaks(res.spectrum, count=args.peaks, rpm=ch.rpm)
     geo = geometry_from(args)
     defects, labels = [], {}
@@ -209,6 +212,10 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="demodulation band, Hz")
     p.add_argument("--auto", action="store_true",
                    help="choose the band with the fast kurtogram (the default)")
+    p.add_argument("--fmax", type=float, default=500.0, metavar="HZ",
+                   help="Fmax of the envelope spectrum (default 500 Hz)")
+    p.add_argument("--lines", type=int, default=800, metavar="N",
+                   help="lines of the envelope spectrum (default 800)")
     p.add_argument("--peaks", type=int, default=10, metavar="K", help="peaks listed")
     add_geometry_options(p, required=False)
     add_json_option(p)
