@@ -10,7 +10,7 @@ import argparse
 import sys
 
 from . import __version__
-from .commands import analysis_cmds, demo_cmds, signal_cmds
+from .commands import analysis_cmds, archive_cmds, demo_cmds, signal_cmds
 from .errors import EngineError
 
 CAUTION = (
@@ -29,7 +29,7 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"shaftwatch {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     sub.required = True
-    for module in (signal_cmds, analysis_cmds, demo_cmds):
+    for module in (signal_cmds, analysis_cmds, demo_cmds, archive_cmds):
         module.register(sub)
     return parser
 
