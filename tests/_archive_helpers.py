@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import warnings
 from datetime import UTC, datetime, timedelta
 from pathlib import Path
 
@@ -39,14 +38,6 @@ def new_archive(path: Path, *, points: int = 1):
         arc.add_point("Works", "P-101", name, location=name.rsplit(" ", 1)[0],
                       direction=name.rsplit(" ", 1)[1], unit="g")
     return arc
-
-
-def quiet():
-    """Context that hides the archive's notices (EngineWarning) in a test."""
-    ctx = warnings.catch_warnings()
-    ctx.__enter__()
-    warnings.simplefilter("ignore")
-    return ctx
 
 
 def taken(week: int) -> datetime:

@@ -108,3 +108,16 @@ def test_a_closed_writer_gives_the_lock_back(tmp_path):
     with pytest.raises(ArchiveError, match="closed"):
         arc.add_site("late")
     open_archive(tmp_path / "a", mode="w").close()
+
+
+def test_an_old_unreadable_lock_is_stale(tmp_path):
+    # An empty lock file is one being written by a writer that has just created it;
+    # once it is older than the grace time, it is a left-over and is taken over.
+    with new_archive(tmp_path / "a"):
+        pass
+    lock = tmp_path / "a" / "writer.lock"
+    lock.write_text("")
+    old = lock.stat().st_mtime - 60
+    os.utime(lock, (old, old))
+    with pytest.warns(EngineWarning, match="unreadable lock file"):
+        open_archive(tmp_path / "a", mode="w").close()

@@ -242,7 +242,8 @@ def read_machine(site: str, tag: str, g: h5py.Group) -> MachineInfo:
         pprops = {k: _value(pattrs.get(k), kind, default)
                   for k, (kind, default) in POINT_FIELDS.items()}
         quantity = pattrs.get("quantity")
-        pprops["quantity"] = text(quantity) if quantity is not None else quantity_of(pprops["unit"])
+        pprops["quantity"] = (text(quantity) if quantity is not None
+                              else quantity_of(pprops["unit"]))
         key = pattrs.get("key")
         patterns = pattrs.get("mapping_patterns", [])
         m.points[name] = PointInfo(site, tag, name,

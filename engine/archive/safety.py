@@ -18,6 +18,7 @@ import os
 import shutil
 import socket
 import sys
+import time
 import uuid
 from dataclasses import dataclass
 from pathlib import Path
@@ -78,6 +79,17 @@ def commit_plant(folder: Path, tmp: Path, *, keep_prev: bool) -> None:
         os.replace(prev_tmp, prev)
     os.replace(tmp, plant)
     fsync_dir(folder)
+
+
+#: An empty or unreadable lock younger than this is being written, not stale, s.
+LOCK_WRITE_GRACE_S = 2.0
+
+
+def _age_s(path: Path) -> float:
+    try:
+        return time.time() - path.stat().st_mtime
+    except FileNotFoundError:
+        return 0.0
 
 
 def pid_alive(pid: int) -> bool:
@@ -171,12 +183,15 @@ class WriterLock:
             When another live writer holds the lock and ``force`` is false.
         """
         notices = []
-        for _ in range(5):
+        for _ in range(100):
             try:
                 fd = os.open(self.path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o644)
             except FileExistsError:
                 other = read_lock(self.path)
                 if other is None:
+                    continue
+                if other.pid == 0 and _age_s(self.path) < LOCK_WRITE_GRACE_S:
+                    time.sleep(0.05)  # another writer has just created it and is filling it in
                     continue
                 stale = other.host == socket.gethostname() and not pid_alive(other.pid)
                 if not (stale or force):

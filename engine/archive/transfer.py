@@ -18,6 +18,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from ..errors import ArchiveError, InputError
+from ..io import write_csv, write_wav
 from ..recording import Recording
 from .catalogue import row_from_attrs
 from .ingest import (
@@ -102,6 +103,8 @@ def store_wav_file(arc: Archive, path: str | os.PathLike, point_path: str, *,
     wav = StreamedWav(path, input_unit=input_unit, full_scale=full_scale,
                       sensitivity=sensitivity)
     src, n, n_ch = wav.source, wav.n_samples, len(wav.channels)
+    if n < 1:
+        raise InputError(f"{src}: the WAV file holds no samples")
     rpm = check_rpm(rpm, src)
     tach = check_tach(tach_channel, n_ch, src)
     ch = summary_channel(n_ch, tach, channel if channel is not None else point.props["channel"])
@@ -157,6 +160,7 @@ def store_wav_file(arc: Archive, path: str | os.PathLike, point_path: str, *,
         side.shutdown(wait=True)
     return _commit_run(arc, tmp, folder, run_id, attrs, summary, quality, point)
 
+
 def _commit_run(arc: Archive, tmp: Path, folder: Path, run_id: str, attrs: dict, summary: dict,
                 quality, point: PointInfo) -> ImportResult:
     final = folder / f"{run_id}{RUN_SUFFIX}"
@@ -172,9 +176,8 @@ def _commit_run(arc: Archive, tmp: Path, folder: Path, run_id: str, attrs: dict,
 
 def export_run(arc: Archive, run_id: str, path: str | os.PathLike, *, wav_bits: int = 32
                ) -> tuple[Path, Path]:
-    """Write a run as WAV or CSV/TSV with a JSON side-car (see :meth:`.store.Archive.export_run`)."""
-    from ..io import write_csv, write_wav
-
+    """Write a run as WAV or CSV/TSV with a JSON side-car (see
+    :meth:`.store.Archive.export_run`)."""
     rec, info = arc.read_run(run_id)
     dest = Path(path)
     suffix = dest.suffix.lower()

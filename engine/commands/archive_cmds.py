@@ -4,6 +4,7 @@
 from __future__ import annotations
 
 import argparse
+import io
 import sys
 import warnings
 from contextlib import contextmanager
@@ -81,8 +82,6 @@ def run_tree(args) -> int:
 
 
 def _table_lines(headers, rows) -> list[str]:
-    import io
-
     buf = io.StringIO()
     print_table(headers, rows, out=buf)
     return buf.getvalue().splitlines()

@@ -18,6 +18,17 @@ from ..units import UNITS, parse_sensitivity, unit
 UNIT_CHOICES = ", ".join(UNITS)
 
 
+class _GivenStore(argparse._StoreAction):
+    """The ordinary ``store`` action that also notes, in ``args._given``, which options
+    were typed, so that a run from an archive can tell a default from a choice."""
+
+    def __call__(self, parser, namespace, values, option_string=None):
+        super().__call__(parser, namespace, values, option_string)
+        given = set(getattr(namespace, "_given", ()))
+        given.add(self.dest)
+        namespace._given = given
+
+
 def add_input_options(p: argparse.ArgumentParser, *, file_required: bool = True) -> None:
     """Options that say how to read a recording file and which channel to analyse.
 
@@ -26,6 +37,10 @@ def add_input_options(p: argparse.ArgumentParser, *, file_required: bool = True)
     are the defaults of the spectrum options).
     """
     if file_required:
+        # Options added to this parser from here on (the spectrum options too) record
+        # whether they were given.
+        p.register("action", None, _GivenStore)
+        p.register("action", "store", _GivenStore)
         p.add_argument("file", metavar="FILE", nargs="?",
                        help="recording: .wav, .mat, .csv or .tsv (or give --archive and --run)")
         a = p.add_argument_group("archive run (instead of FILE)")
@@ -118,23 +133,19 @@ def read_input(args: argparse.Namespace) -> Recording:
 def load_channel(args: argparse.Namespace) -> LoadedChannel:
     """Read the input and pick the channel; InputError when it cannot be analysed.
 
-    For a run of an archive, spectrum options left at their defaults take the point's
-    analysis settings (Fmax, lines, window, averages, overlap).
+    For a run of an archive, the spectrum options not given on the command line take
+    the point's analysis settings (Fmax, lines, window, averages, overlap).
     """
     if getattr(args, "archive", None) or getattr(args, "run", None):
-        from ..spectrum import SpectrumSettings
-
         rec, props = _archive_run(args)
-        default = SpectrumSettings()
+        given = getattr(args, "_given", set())
         fmax = props.get("fmax_hz", math.nan)
         averages = props.get("averages", 0)
-        for name, current, value in (
-                ("fmax", default.fmax_hz, None if math.isnan(fmax) else fmax),
-                ("lines", default.lines, props.get("lines")),
-                ("window", default.window, props.get("window")),
-                ("averages", default.averages, averages if averages else None),
-                ("overlap", default.overlap, props.get("overlap"))):
-            if hasattr(args, name) and getattr(args, name) == current and value is not None:
+        for name, value in (("fmax", None if math.isnan(fmax) else fmax),
+                            ("lines", props.get("lines")), ("window", props.get("window")),
+                            ("averages", averages if averages else None),
+                            ("overlap", props.get("overlap"))):
+            if hasattr(args, name) and name not in given and value is not None:
                 setattr(args, name, value)
     else:
         rec = read_input(args)

@@ -72,11 +72,12 @@ def _worker_import(wav: str, archive: str) -> None:
     arc.add_machine("S", "M")
     arc.add_point("S", "M", "P")
     t0 = time.perf_counter()
-    arc.import_wav_file(wav, "S/M/P")
+    arc.import_wav_file(wav, "S/M/P")  # what `shaftwatch import` does with a large WAV
     arc.close()
     seconds = time.perf_counter() - t0
-    rss_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
-    print(json.dumps({"seconds": seconds, "maxrss_mb": rss_mb}))
+    usage = resource.getrusage(resource.RUSAGE_SELF)
+    print(json.dumps({"seconds": seconds, "maxrss_mb": usage.ru_maxrss / 1024.0,
+                      "cpu_s": usage.ru_utime + usage.ru_stime}))
 
 
 def _copy_with_fsync(src: Path, dst: Path) -> None:
@@ -98,7 +99,7 @@ def bench_import(tmp: Path) -> bool:
     ref = best_of(do_copy, repeat=3)
     copy.unlink(missing_ok=True)
     runs = []
-    for i in range(2):
+    for i in range(3):  # the best of three: the machine may be busy with other work
         out = subprocess.run(
             [sys.executable, "-m", "tests.benchmarks.bench_archive", "--worker-import",
              str(wav), str(tmp / f"a{i}.shaftwatch")],
@@ -109,6 +110,10 @@ def bench_import(tmp: Path) -> bool:
     rss = max(r["maxrss_mb"] for r in runs)
     ok = report(f"import of a {wav.stat().st_size / 1e6:.0f} MB float WAV", ours, ref, 4.0,
                 ref_name="file copy + fsync")
+    walls = ", ".join(f"{r['seconds']:.2f}" for r in runs)
+    cpu = min(r["cpu_s"] for r in runs)
+    print(f"  import wall times {walls} s; CPU time of the import process {cpu:.1f} s "
+          "(decoding, SHA-256, compression in 2 threads, summary)")
     print(f"  peak resident memory of the import process: {rss:.0f} MB (target < 300 MB) "
           f"{'met' if rss < 300 else 'NOT met'}")
     wav.unlink()
