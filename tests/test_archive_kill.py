@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import hashlib
 import random
+import select
 import signal
 import subprocess
 import sys
@@ -80,7 +81,11 @@ def test_archive_survives_sigkill_at_random_moments(tmp_path):
     for kill in range(KILLS):
         proc = subprocess.Popen([sys.executable, "-c", WRITER, str(folder), str(kill + 1)],
                                 cwd=ROOT, stdout=subprocess.PIPE, stderr=subprocess.DEVNULL)
-        time.sleep(rnd.uniform(0.7, 1.8))  # starting Python and opening take ~0.9 s
+        # Wait until the writer has the archive open (start-up time varies with the
+        # machine's load), then kill it at a random moment of its work.
+        ready, _, _ = select.select([proc.stdout], [], [], 60.0)
+        assert ready and proc.stdout.readline().strip() == b"OPEN", "writer did not start"
+        time.sleep(rnd.uniform(0.02, 0.9))
         proc.send_signal(signal.SIGKILL)
         out, _ = proc.communicate()
         new_runs = {}
@@ -105,7 +110,7 @@ def test_archive_survives_sigkill_at_random_moments(tmp_path):
             assert machines <= set(arc.plant.sites["Works"].machines)
             if lines_value is not None:
                 assert arc.point(POINT).props["lines"] == lines_value
-    assert len(runs) > 20, "the writer should have committed runs between kills"
+    assert len(runs) >= KILLS // 2, "the writer should have committed runs between kills"
     last = next(iter(runs))
     rec, _ = open_archive(folder).read_run(last)  # and the samples themselves read back
     assert hashlib.sha256(rec.channels[0].samples.astype("<f8").tobytes()).hexdigest() \
