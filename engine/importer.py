@@ -94,11 +94,12 @@ class ImportSummary:
     skipped: list[dict] = field(default_factory=list)
     cancelled: bool = False
     remembered: dict[str, list[str]] = field(default_factory=dict)
+    evaluation: dict | None = None     # engine.pipeline.Evaluation.as_dict() of the new runs
 
     def as_dict(self) -> dict:
         return {"imported": self.imported, "duplicates": self.duplicates,
                 "skipped": self.skipped, "cancelled": self.cancelled,
-                "remembered": self.remembered}
+                "remembered": self.remembered, "evaluation": self.evaluation}
 
 
 def find_files(inputs: Sequence[str | os.PathLike]) -> tuple[list[Path], list[dict]]:
@@ -223,8 +224,8 @@ def _file_time(path: Path) -> datetime:
 
 
 def run_import(plan: ImportPlan, *, progress: Callable[[int, int, str], None] | None = None,
-               cancel=None, stream_threshold_bytes: int = STREAM_THRESHOLD_BYTES
-               ) -> ImportSummary:
+               cancel=None, stream_threshold_bytes: int = STREAM_THRESHOLD_BYTES,
+               analyse: bool = True) -> ImportSummary:
     """Import the mapped files of a plan, one after the other.
 
     Parameters
@@ -236,6 +237,9 @@ def run_import(plan: ImportPlan, *, progress: Callable[[int, int, str], None] | 
         Checked before each file; when set, the import stops there.
     stream_threshold_bytes : int, keyword-only
         WAV files whose float64 samples exceed this are streamed.
+    analyse : bool, keyword-only
+        Analyse the new runs and evaluate their points' alarms (engine.pipeline), so
+        that every run gets its state on import (default True).
 
     Returns
     -------
@@ -263,6 +267,12 @@ def run_import(plan: ImportPlan, *, progress: Callable[[int, int, str], None] | 
         if new:
             arc.update_point(path, mapping_patterns=list(point.mapping_patterns) + new)
             summary.remembered[path] = new
+    if analyse and summary.imported:
+        from .pipeline import process_new_runs
+
+        ids = [e["run_id"] for e in summary.imported]
+        summary.evaluation = process_new_runs(arc, ids).as_dict()
+        arc.flush()
     return summary
 
 

@@ -63,6 +63,7 @@ POINT_FIELDS: dict[str, tuple[type, object]] = {
     "averages": (int, 0),
     "overlap": (float, 0.5),
     "channel": (int, -1),
+    "shaft": (str, ""),
 }
 FOUNDATIONS = ("rigid", "flexible")
 ISO_GROUPS = (0, 1, 2)

@@ -21,6 +21,7 @@ import numpy as np
 from ..errors import ArchiveError, EngineWarning, InputError
 from ..recording import Recording
 from .catalogue import Catalogue, CatalogueRow, row_from_attrs
+from .derived_store import DerivedStore
 from .ingest import STREAM_BLOCK_FRAMES, STREAM_LEADING_SAMPLES, ImportResult
 from .plant import (
     PointInfo,
@@ -37,6 +38,7 @@ from .plant import (
 )
 from .runfile import ChunkEncoder, RunInfo, info_from, open_run, read_run_file
 from .safety import WriterLock, commit_plant
+from .setup_store import SetupStore
 from .schema import (
     CATALOGUE_FILE,
     PLANT_FILE,
@@ -134,7 +136,7 @@ def open_archive(path: str | os.PathLike, *, mode: str = "r", force: bool = Fals
         raise
 
 
-class Archive:
+class Archive(SetupStore, DerivedStore):
     """An open archive.  Create with :func:`create_archive` or :func:`open_archive`.
 
     Attributes
@@ -213,6 +215,8 @@ class Archive:
         if runs.is_dir():
             for p in runs.glob("*/*" + TMP_SUFFIX):
                 p.unlink(missing_ok=True)
+        for p in (self.path / "results").glob("*/*" + TMP_SUFFIX):
+            p.unlink(missing_ok=True)
 
     def _load(self) -> None:
         plant_file = self.path / PLANT_FILE
@@ -245,6 +249,7 @@ class Archive:
     def reload(self) -> None:
         """Read the asset tree and the catalogue again (a reader sees a writer's work)."""
         self._load()
+        self._reload_derived()
 
     def _run_keys(self) -> tuple[dict[str, str], bool]:
         """Run id -> point folder of every run file on disk, and whether some run id
@@ -311,6 +316,7 @@ class Archive:
         if self._dirty:
             self._catalogue.write(self.path / CATALOGUE_FILE)
             self._dirty = 0
+        self._flush_derived()
 
     # -- asset tree ---------------------------------------------------------------------
     def _edit(self, change, *, machine: tuple[str, str] | None = None,
@@ -575,4 +581,7 @@ class Archive:
         from .integrity import rebuild_catalogue
 
         self._writable()
-        return rebuild_catalogue(self)
+        out = rebuild_catalogue(self)
+        self._reload_derived()
+        self._sync_catalogue_states()
+        return out
