@@ -7,10 +7,10 @@ errors go to stderr as one line naming the file and the problem, with exit statu
 from __future__ import annotations
 
 import argparse
+import importlib
 import sys
 
 from . import __version__
-from .commands import analysis_cmds, archive_cmds, demo_cmds, signal_cmds
 from .errors import EngineError
 
 CAUTION = (
@@ -18,6 +18,11 @@ CAUTION = (
     "ISO 20816 zone defaults are generic: the machine maker's limits, the site's "
     "standards and local codes take precedence."
 )
+
+
+#: Modules of engine/commands whose ``register(subparsers)`` adds their commands.
+COMMAND_MODULES = ("signal_cmds", "analysis_cmds", "model_cmds", "demo_cmds", "archive_cmds",
+                   "alarm_cmds", "trend_cmds", "batch_cmds", "report_cmds")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -29,7 +34,13 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"shaftwatch {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     sub.required = True
-    for module in (signal_cmds, analysis_cmds, demo_cmds, archive_cmds):
+    for name in COMMAND_MODULES:
+        try:
+            module = importlib.import_module(f"engine.commands.{name}")
+        except ModuleNotFoundError as exc:
+            if exc.name != f"engine.commands.{name}":
+                raise
+            continue
         module.register(sub)
     return parser
 
