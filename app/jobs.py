@@ -17,7 +17,7 @@ import traceback
 from collections.abc import Callable
 from typing import Any
 
-from PySide6.QtCore import QObject, QThread, Signal
+from PySide6.QtCore import QObject, Qt, QThread, Signal
 
 from engine.errors import EngineError
 
@@ -58,7 +58,9 @@ class Job(QObject):
         self._worker = _Worker(self)
         self._worker.moveToThread(self._thread)
         self._thread.started.connect(self._worker.run)
-        self._worker.done.connect(self._thread.quit)
+        # Direct: quit() is thread-safe and must not wait for the GUI thread, which may
+        # be the one waiting for this thread to end.
+        self._worker.done.connect(self._thread.quit, Qt.ConnectionType.DirectConnection)
         self.done = False
 
     def start(self) -> Job:
