@@ -421,7 +421,7 @@ def _bearing(run: _Run) -> list[Finding]:
         else:
             stage = 3 if len(bands) >= MIN_SIDEBANDS and v_lines else 2 if broadband else 1
             severity = ("watch", "warning", "serious")[stage - 1]
-            text = (f"Indicates a {('early', 'developing', 'advanced')[stage - 1]} {family} "
+            text = (f"Indicates {('an early', 'a developing', 'an advanced')[stage - 1]} {family} "
                     f"defect of a bearing on the {run.shaft} shaft; a qualified person should "
                     + ("shorten the measurement interval and check lubrication.",
                        "check lubrication and plan the bearing's replacement.",

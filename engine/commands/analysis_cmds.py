@@ -1,4 +1,6 @@
-"""``shaftwatch bearing``, ``envelope``, ``orders`` and ``speed``: analysis of one file."""
+"""``shaftwatch bearing``, ``envelope``, ``orders`` and ``speed``: analysis of one file
+(or one run of an archive); envelope peaks are tied to the defect lines of a bearing
+given by its geometry, or of the machine model's bearings on the point's shaft."""
 
 from __future__ import annotations
 
@@ -14,6 +16,7 @@ from ..orders import order_cut, order_spectrum
 from ..peaks import find_peaks
 from ..speed import estimate_speed
 from ..tach import detect_pulses
+from . import peak_labels
 from .common import (
     add_input_options,
     add_json_option,
@@ -81,9 +84,16 @@ def run_envelope(args: argparse.Namespace) -> int:
     settings = replace(ENVELOPE_SETTINGS, fmax_hz=args.fmax, lines=args.lines)
     res = envelope_spectrum(ch.samples, ch.fs_hz, band_hz=band, settings=settings, unit="g",
                             source=ch.source)
-    peaks = find_peaks(res.spectrum, count=args.peaks, rpm=ch.rpm)
     geo = geometry_from(args)
-    defects, labels = [], {}
+    if geo is not None and (args.machine_file or args.shaft):
+        raise InputError("give the bearing geometry options or a machine model "
+                         "(--machine-file, --shaft), not both")
+    ctx, label_warnings = (None, []) if geo is not None else \
+        peak_labels.model_context(args, ch.rpm)
+    # With a machine model, orders are of the point's shaft (reference speed × ratio).
+    peaks = find_peaks(res.spectrum, count=args.peaks,
+                       rpm=ch.rpm if ctx is None else ctx.shaft_rpm)
+    defects, labels, model_sources = [], {}, None
     if geo is not None:
         if ch.rpm is None:
             raise InputError(f"{ch.source}: defect matching needs the shaft speed (--rpm)")
@@ -99,13 +109,31 @@ def run_envelope(args: argparse.Namespace) -> int:
             err, name = min(near)
             if err <= 0.02:  # 1–2 % slip of real bearings (Randall & Antoni 2011)
                 labels[p.line] = name
+    elif ctx is not None and ctx.shaft_rpm and ctx.bearings_on_shaft():
+        defects = _model_defects(res.spectrum, ctx)
+        model_sources = peak_labels.label(
+            peaks, ctx.envelope_sources(), shaft=ctx.shaft,
+            tolerance_hz=res.spectrum.resolution_hz, tolerance_pct=args.tolerance_pct)
+        labels = {p.line: m[0]["name"] for p, m in zip(peaks, model_sources) if m}
+    elif ctx is not None and ctx.shaft_rpm:
+        label_warnings.append(f"{ctx.origin} has no bearing on the "
+                              f"{ctx.shaft or 'reference'} shaft; envelope peaks are not "
+                              "labelled")
     peak_list = [{**p.as_dict(), "source": labels.get(p.line)} for p in peaks]
-    warnings = ch.warnings() + list(res.warnings) + list(res.spectrum.warnings)
+    if model_sources is not None:
+        for p, srcs in zip(peak_list, model_sources):
+            p["sources"] = srcs
+    warnings = ch.warnings() + list(res.warnings) + list(res.spectrum.warnings) \
+        + label_warnings
     if args.json:
         d = res.spectrum.as_dict()
         d.update(source=ch.source, band_hz=list(res.band_hz), auto=res.auto,
                  kurtosis_in_band=res.kurtosis_in_band, peaks=peak_list, defects=defects,
                  warnings=warnings)
+        if model_sources is not None:
+            d["labels"] = {**ctx.as_dict(), "tolerance_pct": args.tolerance_pct,
+                           "tolerance_hz": res.spectrum.resolution_hz,
+                           "bearings": [b.label for b in ctx.bearings_on_shaft()]}
         emit_json(d)
         return 0
     lo, hi = res.band_hz
@@ -126,6 +154,18 @@ def run_envelope(args: argparse.Namespace) -> int:
                       m["snr_db"]] for m in defects])
     print_warnings(warnings)
     return 0
+
+
+def _model_defects(spectrum, ctx) -> list[dict]:
+    """Defect matches of the bearings on the point's shaft (names like "pump DE BPFO"),
+    each at the speed of its shaft."""
+    targets = {}
+    for b in ctx.bearings_on_shaft():
+        hz = defect_frequencies_hz(b.geometry, ctx.reference_rpm * ctx.model.ratio(b.shaft))
+        targets.update({f"{b.label} {k.upper()}": hz[k] for k in DEFECTS})
+    return [{"name": m.name, "frequency_hz": m.frequency_hz,
+             "harmonics_found": m.harmonics_found, "amplitude": m.amplitude,
+             "snr_db": m.snr_db} for m in defect_matches(spectrum, targets)]
 
 
 def _tach(args: argparse.Namespace, ch) -> tuple:
@@ -206,7 +246,11 @@ def register(sub: argparse._SubParsersAction) -> None:
 
     p = sub.add_parser("envelope", help="envelope (demodulated) spectrum for bearings",
                        description="Band-pass, Hilbert demodulation and the envelope "
-                                   "spectrum in g; band by hand or by the fast kurtogram.")
+                                   "spectrum in g; band by hand or by the fast kurtogram. "
+                                   "Peaks are matched to the defect lines of the geometry "
+                                   "options, or, without them, to the bearings on the "
+                                   "point's shaft in the machine model (--archive/--run "
+                                   "or --machine-file).")
     add_input_options(p)
     p.add_argument("--band", type=float, nargs=2, metavar=("LO", "HI"),
                    help="demodulation band, Hz")
@@ -218,8 +262,10 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="lines of the envelope spectrum (default 800)")
     p.add_argument("--peaks", type=int, default=10, metavar="K", help="peaks listed")
     add_geometry_options(p, required=False)
+    peak_labels.add_model_options(p, tolerance_pct=2.0, why="slip of rolling elements, "
+                                                             "Randall & Antoni 2011")
     add_json_option(p)
-    p.set_defaults(func=run_envelope)
+    p.set_defaults(func=run_envelope, point_settings=False)  # its own Fmax and lines
 
     p = sub.add_parser("orders", help="order spectrum or order cut from a tachometer channel",
                        description="Computed order tracking: resample to constant shaft "

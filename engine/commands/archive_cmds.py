@@ -131,7 +131,7 @@ def run_add_point(args) -> int:
     props = {"location": args.location, "direction": args.direction, "unit": args.unit,
              "sensitivity": args.sensitivity, "fmax_hz": args.fmax, "lines": args.lines,
              "window": args.window, "averages": args.averages, "overlap": args.overlap,
-             "channel": args.channel, "mapping_patterns": args.pattern}
+             "channel": args.channel, "mapping_patterns": args.pattern, "shaft": args.shaft}
     props = {k: v for k, v in props.items() if v is not None}
     parts = args.point.split("/")
     if len(parts) != 3:
@@ -313,6 +313,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("archive", metavar="ARCHIVE")
     p.add_argument("point", metavar="SITE/MACHINE/POINT")
     p.add_argument("--location", metavar="TEXT", help="e.g. 'motor DE'")
+    p.add_argument("--shaft", metavar="S",
+                   help="shaft of the machine model the point is on, e.g. pump")
     p.add_argument("--direction", choices=DIRECTIONS,
                    help="H, V, A (axial) or R (radial)")
     p.add_argument("--unit", metavar="U", help="unit of the measured quantity (default g)")

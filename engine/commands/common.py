@@ -145,7 +145,8 @@ def load_channel(args: argparse.Namespace) -> LoadedChannel:
                             ("lines", props.get("lines")), ("window", props.get("window")),
                             ("averages", averages if averages else None),
                             ("overlap", props.get("overlap"))):
-            if hasattr(args, name) and name not in given and value is not None:
+            if (getattr(args, "point_settings", True) and hasattr(args, name)
+                    and name not in given and value is not None):
                 setattr(args, name, value)
     else:
         rec = read_input(args)

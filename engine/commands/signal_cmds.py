@@ -1,4 +1,6 @@
-"""``shaftwatch spectrum``, ``levels`` and ``info``: one recording, no archive."""
+"""``shaftwatch spectrum``, ``band-waveform``, ``levels`` and ``info``: one recording (a
+file, or a run of an archive with ``--archive``/``--run``); spectrum peaks are tied to a
+machine model's sources (:mod:`engine.commands.peak_labels`)."""
 
 from __future__ import annotations
 
@@ -18,6 +20,7 @@ from ..peaks import find_peaks
 from ..spectrum import AVERAGING, SCALES, Spectrum, SpectrumSettings, compute_spectrum
 from ..units import DEFAULT_LOW_CUT_HZ, integration_steps, unit
 from ..windows import WINDOWS
+from . import peak_labels
 from .common import (
     LoadedChannel,
     add_input_options,
@@ -78,8 +81,14 @@ def run_spectrum(args: argparse.Namespace) -> int:
     # their edge is not a machine's peak.
     lowest = (args.low_cut + 3 * spec.resolution_hz
               if integration_steps(ch.unit, spec.unit) > 0 else None)
-    peaks = find_peaks(spec, count=args.peaks, rpm=ch.rpm, min_frequency_hz=lowest)
-    warnings = ch.warnings() + spec.warnings
+    ctx, label_warnings = peak_labels.model_context(args, ch.rpm)
+    # With a machine model, orders are of the point's shaft (reference speed × ratio).
+    order_rpm = ch.rpm if ctx is None else ctx.shaft_rpm
+    peaks = find_peaks(spec, count=args.peaks, rpm=order_rpm, min_frequency_hz=lowest)
+    labels = None if ctx is None else peak_labels.label(
+        peaks, ctx.sources(), shaft=ctx.shaft, tolerance_hz=spec.resolution_hz,
+        tolerance_pct=args.tolerance_pct)
+    warnings = ch.warnings() + spec.warnings + label_warnings
     amplitude = spec.in_db() if args.db else spec.amplitude
     if args.output:
         header = f"frequency_hz,{'level_db' if args.db else 'amplitude'}_{spec.scale}_{spec.unit}"
@@ -96,6 +105,11 @@ def run_spectrum(args: argparse.Namespace) -> int:
         d["channel"] = ch.index
         d["rpm"] = ch.rpm
         d["peaks"] = [p.as_dict() for p in peaks]
+        if labels is not None:
+            for p, srcs in zip(d["peaks"], labels):
+                p["sources"] = srcs
+            d["labels"] = {**ctx.as_dict(), "tolerance_pct": args.tolerance_pct,
+                           "tolerance_hz": spec.resolution_hz}
         d["warnings"] = warnings
         emit_json(d)
         return 0
@@ -105,17 +119,26 @@ def run_spectrum(args: argparse.Namespace) -> int:
         ("window", spec.window), ("Fmax", f"{spec.fmax_hz:g} Hz"), ("lines", str(spec.lines)),
         ("resolution", f"{spec.resolution_hz:.5g} Hz"), ("ENBW", f"{spec.enbw_hz:.5g} Hz"),
         ("averages", f"{spec.averages} ({spec.averaging}, {spec.overlap:.0%} overlap)"),
-    ])
+    ] + ([] if ctx is None else [
+        ("machine model", ctx.origin),
+        ("orders of", f"{ctx.shaft or 'reference'} shaft"
+                      + (f" at {ctx.shaft_rpm:.1f} rpm" if ctx.shaft_rpm else "")),
+        ("label tolerance", f"{args.tolerance_pct:g} % (at least {spec.resolution_hz:.4g} Hz)"),
+    ]))
     print()
     headers = ["#", "frequency Hz", "CPM", f"amplitude {spec.unit_label}"]
-    if ch.rpm:
+    if order_rpm:
         headers.append("order")
+    if labels is not None:
+        headers.append("sources")
     rows = []
     for i, p in enumerate(peaks, 1):
         amp = spec.in_db()[p.line] if args.db else p.amplitude
         row = [i, p.frequency_hz, p.frequency_hz * 60.0, amp]
-        if ch.rpm:
+        if order_rpm:
             row.append(f"{p.order:.3f}×")
+        if labels is not None:
+            row.append(peak_labels.names(labels[i - 1]))
         rows.append(row)
     print_table(headers, rows)
     if bands:
@@ -218,7 +241,10 @@ def run_info(args: argparse.Namespace) -> int:
 
 def register(sub: argparse._SubParsersAction) -> None:
     p = sub.add_parser("spectrum", help="averaged, amplitude-correct spectrum of a recording",
-                       description="Averaged spectrum of one channel with its largest peaks.")
+                       description="Averaged spectrum of one channel with its largest "
+                                   "peaks; with a machine model (--archive/--run, or "
+                                   "--machine-file with --rpm) each peak is listed with "
+                                   "the sources it matches, closest first.")
     add_input_options(p)
     add_spectrum_options(p)
     p.add_argument("--peaks", type=int, default=10, metavar="K",
@@ -226,6 +252,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("-o", "--output", metavar="FILE.csv", help="also write the spectrum to CSV")
     p.add_argument("--band", type=float, nargs=2, action="append", metavar=("LO", "HI"),
                    help="also give the RMS level in this band, Hz (repeatable)")
+    peak_labels.add_model_options(p, tolerance_pct=1.0, why="speed uncertainty, "
+                                                             "common practice")
     add_json_option(p)
     p.set_defaults(func=run_spectrum)
 
