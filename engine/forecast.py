@@ -257,7 +257,7 @@ def _level_dates(fit: _Fit, boot: np.ndarray, name: str, level: float, log: bool
     sample = t_last + np.minimum(_crossing_days(boot, ly), 1e12) * _DAY_S
     raw = [date, *(float(x) for x in np.percentile(sample, [_Q_LOW, 100 - _Q_LOW]))]
     got = [x if x <= horizon_end else _nan for x in raw]
-    day = [iso_date(x)[:10] for x in raw]
+    day = [iso_date(x)[:10] for x in got]   # only dates within the horizon are printed
     if math.isnan(got[0]):
         text = f"{name.capitalize()} is beyond the horizon of {horizon:g} days"
         return got, text + (f" (90 % interval from {day[1]})." if not math.isnan(got[1]) else ".")
