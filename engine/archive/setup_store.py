@@ -160,11 +160,26 @@ class SetupStore:
         from ..alarms.plan import AlarmPlan
 
         self.plant.point(point)
+        # Cached per version of plant.h5 (every edit replaces the file): loops over runs
+        # ask for the same point's plan again and again.
+        try:
+            st = self._plant_source.stat()
+            version = (str(self._plant_source), st.st_ino, st.st_mtime_ns, st.st_size)
+        except OSError:
+            version = None
+        cache = self.__dict__.setdefault("_plan_cache", {})
+        if version is not None and cache.get("version") != version:
+            cache.clear()
+            cache["version"] = version
+        if version is not None and point in cache:
+            return cache[point]
         data = _read_json(self._plant_source, f"{_point_path(point)}/{PLAN_GROUP}",
                           f"alarm plan of {point}")
-        if data is None:
-            return None
-        return AlarmPlan.from_dict(data, source=f"{self.path}: alarm plan of {point}")
+        plan = None if data is None else AlarmPlan.from_dict(
+            data, source=f"{self.path}: alarm plan of {point}")
+        if version is not None:
+            cache[point] = plan
+        return plan
 
     def set_plan(self, point: str, plan) -> None:
         """Store ``plan`` for the point (validated against its Fmax).  The history is not
