@@ -14,7 +14,7 @@ import os
 from collections.abc import Callable, Sequence
 from pathlib import Path
 
-from PySide6.QtCore import QThread, Signal
+from PySide6.QtCore import Signal
 from PySide6.QtWidgets import (QAbstractItemView, QCheckBox, QComboBox, QDialog, QFileDialog,
                                QHBoxLayout, QHeaderView, QLabel, QLineEdit, QMessageBox,
                                QPlainTextEdit, QProgressBar, QPushButton, QTableWidget,
@@ -42,19 +42,6 @@ class _Flag:
         return bool(self._cancel())
 
 
-def ending_thread(work):
-    """``work`` that also ends its worker thread's event loop as it returns.
-
-    The job runner waits for a job's thread on the GUI thread once the job has ended,
-    while the thread's own quit is queued to the GUI thread; quitting from inside the
-    worker lets that wait return at once instead of at its time-out.
-    """
-    def run(progress, cancel):
-        try:
-            return work(progress, cancel)
-        finally:
-            QThread.currentThread().quit()
-    return run
 
 
 def _plain_reason(file: str, reason: str | None) -> str:
@@ -343,7 +330,7 @@ class ImportDialog(QDialog):
         self.summary = None
         self.summary_text.clear()
         self._busy(True)
-        self.job = self.ctx.jobs.run(ending_thread(work), title="Import recordings",
+        self.job = self.ctx.jobs.run(work, title="Import recordings",
                                      on_done=self._on_done, on_error=self._on_error,
                                      on_progress=self._on_progress,
                                      on_cancelled=lambda: self._on_stopped(holder))

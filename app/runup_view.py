@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import QRectF, Qt, QThread, Signal
+from PySide6.QtCore import QRectF, Qt, Signal
 from PySide6.QtGui import QColor
 from PySide6.QtWidgets import (QComboBox, QDoubleSpinBox, QGridLayout, QHBoxLayout, QLabel,
                                QLineEdit, QMessageBox, QProgressBar, QPushButton, QSpinBox,
@@ -29,19 +29,6 @@ from .runup_model import (MARK_SHARE, NoTach, RunupResult, RunupSettings, analys
 CAMPBELL_RANGE_DB = 50.0
 
 
-def ending_thread(work):
-    """``work`` that also ends its worker thread's event loop as it returns.
-
-    The job runner waits for a job's thread on the GUI thread once the job has ended,
-    while the thread's own quit is queued to the GUI thread; quitting from inside the
-    worker lets that wait return at once instead of at its time-out.
-    """
-    def run(progress, cancel):
-        try:
-            return work(progress, cancel)
-        finally:
-            QThread.currentThread().quit()
-    return run
 
 
 def _theme_plot(plot: pg.PlotWidget, bg: QColor, fg: QColor) -> None:
@@ -313,7 +300,7 @@ class RunupView(QWidget):
             return lambda *a: fn(*a) if gen == self._generation else None
 
         self._busy(True)
-        self.job = self.ctx.jobs.run(ending_thread(work), title=title, on_done=current(on_done),
+        self.job = self.ctx.jobs.run(work, title=title, on_done=current(on_done),
                                      on_error=current(self._on_error),
                                      on_progress=current(self._on_progress),
                                      on_cancelled=current(self._on_cancelled))
