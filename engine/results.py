@@ -11,8 +11,10 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
-from .spectrum import Spectrum
+if TYPE_CHECKING:  # engine.spectrum pulls in scipy.signal, which readers of results skip
+    from .spectrum import Spectrum
 
 #: Standard values computed for every run (units in the names; NaN when not measurable).
 STANDARD_VALUES = ("overall_velocity_mm_s", "1x_mm_s", "2x_mm_s", "3x_mm_s",

@@ -30,7 +30,6 @@ import numpy as np
 
 from ..errors import ArchiveError
 from ..results import RunResults
-from ..spectrum import Spectrum
 from .safety import commit
 from .schema import CREATED_BY, SCHEMA_VERSION, TMP_SUFFIX, iso_utc, now_utc
 
@@ -44,7 +43,7 @@ _SPECTRUM_ATTRS = ("unit", "scale", "window", "fmax_hz", "lines", "resolution_hz
 
 
 # -- one run's results file --------------------------------------------------------------
-def _put_spectrum(f: h5py.File, name: str, s: Spectrum) -> None:
+def _put_spectrum(f: h5py.File, name: str, s) -> None:
     d = f.create_dataset(name, data=s.amplitude.astype(np.float32), compression="gzip",
                          shuffle=True)
     for k in _SPECTRUM_ATTRS:
@@ -52,10 +51,12 @@ def _put_spectrum(f: h5py.File, name: str, s: Spectrum) -> None:
         d.attrs[k] = v if isinstance(v, str) else float(v)
 
 
-def _get_spectrum(f: h5py.File, name: str) -> Spectrum | None:
+def _get_spectrum(f: h5py.File, name: str):
+    """The ``engine.spectrum.Spectrum`` stored as ``name``, or None."""
     d = f.get(name)
     if d is None:
         return None
+    from ..spectrum import Spectrum  # scipy.signal only when a spectrum is read
     a = d.attrs
     amp = np.asarray(d[()], dtype=np.float64)
     scale = str(a["scale"])
