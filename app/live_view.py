@@ -22,6 +22,7 @@ from PySide6.QtWidgets import (QHBoxLayout, QLabel, QMessageBox, QPushButton, QS
                                QSizePolicy, QVBoxLayout, QWidget)
 
 from engine.errors import EngineError, InputError
+from engine.pipeline import process_new_runs
 from engine.recording import Channel, Recording
 from engine.units import unit
 
@@ -332,6 +333,8 @@ class LiveView(QWidget):
             with self.ctx.writer("shaftwatch-gui: keep live signal") as arc:
                 result = arc.import_recording(rec, point, taken=taken, notes=notes,
                                               source=src.description)
+                if not result.duplicate:      # analysed and evaluated, as on import
+                    process_new_runs(arc, [result.run_id])
             progress(1, 1, "stored")
             return result
 

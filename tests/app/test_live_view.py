@@ -213,6 +213,10 @@ def test_keep_stores_one_run_at_the_chosen_point(view, ctx, qtbot):
     assert rec.channels[0].unit == "g"
     assert info.rpm == pytest.approx(1480.0)
     assert "kept as run" in view.status.text()
+    # Analysed and evaluated as on import: results stored, a state given.
+    res = ctx.archive().results(rows[0].run_id)
+    assert res is not None and res.spectrum is not None
+    assert ctx.archive().point_states()[POINT_V]["run_id"] == rows[0].run_id
 
 
 def test_replayed_wav_feeds_the_same_spectrum_as_compute_spectrum(view, qtbot, tmp_path, rng):
