@@ -35,13 +35,7 @@ def build_parser() -> argparse.ArgumentParser:
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     sub.required = True
     for name in COMMAND_MODULES:
-        try:
-            module = importlib.import_module(f"engine.commands.{name}")
-        except ModuleNotFoundError as exc:
-            if exc.name != f"engine.commands.{name}":
-                raise
-            continue
-        module.register(sub)
+        importlib.import_module(f"engine.commands.{name}").register(sub)
     return parser
 
 
