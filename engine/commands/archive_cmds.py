@@ -56,6 +56,12 @@ def run_tree(args) -> int:
     with _archive(args.archive, "r", "tree") as arc:
         tree = arc.tree()
         plant = arc.plant_name
+        states = arc.point_states()
+    for site in tree:
+        for m in site["machines"]:
+            for p in m["points"]:
+                st = states.get(p["path"], {})
+                p["state"], p["zone"] = st.get("state", ""), st.get("zone", "")
     if args.json:
         emit_json({"plant": plant, "sites": tree})
         return 0
@@ -72,12 +78,13 @@ def run_tree(args) -> int:
                 rows.append([p["name"], p["direction"] or "—", p["runs"],
                              last["taken"][:16].replace("T", " ") if last else "—",
                              last["velocity_rms_mm_s"] if last else None,
+                             p["zone"] or "—", p["state"] or "not evaluated",
                              last["quality"] if last else "no data"])
             if rows:
                 sys.stdout.write("".join(
                     "      " + line + "\n" for line in _table_lines(
-                        ["point", "dir", "runs", "latest run", "velocity mm/s", "data quality"],
-                        rows)))
+                        ["point", "dir", "runs", "latest run", "velocity mm/s", "zone",
+                         "state", "data quality"], rows)))
     return 0
 
 
