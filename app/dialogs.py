@@ -20,6 +20,7 @@ from PySide6.QtWidgets import (
     QVBoxLayout,
     QWidget,
 )
+from shiboken6 import isValid
 
 import engine
 
@@ -126,23 +127,37 @@ class JobProgressDialog(QProgressDialog):
         self.setAutoReset(False)
         self.setMinimumWidth(420)
         self._base = text
+        self._ended = False
         job.progress.connect(self._progress)
         self.canceled.connect(self._cancel)
         for sig in (job.finished, job.failed, job.cancelled):
             sig.connect(self._end)
 
     def _progress(self, done: int, total: int, text: str) -> None:
-        if total > 0:
-            self.setMaximum(total)
-            self.setValue(min(done, total))
-        if text:
-            self.setLabelText(f"{self._base}\n{text}")
+        if self._ended or not isValid(self):   # job ended, or the window went first
+            return
+        try:
+            if total > 0:
+                self.setMaximum(total)
+                self.setValue(min(done, total))
+            if text:
+                self.setLabelText(f"{self._base}\n{text}")
+        except RuntimeError:      # the dialog was deleted with its window meanwhile
+            self._ended = True
 
     def _cancel(self) -> None:
         self.setLabelText(f"{self._base}\nStopping…")
         self.job.cancel()
 
     def _end(self, *_args) -> None:
+        self._ended = True
+        for sig, slot in ((self.job.progress, self._progress),
+                          (self.job.finished, self._end), (self.job.failed, self._end),
+                          (self.job.cancelled, self._end)):
+            try:
+                sig.disconnect(slot)
+            except (RuntimeError, TypeError):
+                pass                  # already disconnected
         self.close()
         self.deleteLater()
 

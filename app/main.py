@@ -28,7 +28,6 @@ from .context import APPLICATION, ORGANISATION, RESOURCES, AppContext, Palette, 
 from .jobs import Cancelled, JobRunner
 from .logsetup import data_folder, install_excepthook, setup_logging
 from .main_window import MainWindow
-from .qtfix import guard_singletons
 from .theme import apply_theme
 
 log = logging.getLogger("shaftwatch.app")
@@ -170,7 +169,6 @@ def parse_args(argv: list[str]) -> argparse.Namespace:
 
 def create(argv: list[str] | None = None) -> tuple[QApplication, Shaftwatch]:
     """Build the application and start opening an archive (the event loop is not run)."""
-    guard_singletons()
     argv = list(sys.argv[1:] if argv is None else argv)
     args = parse_args(argv)
     app = QApplication.instance() or QApplication([sys.argv[0]])

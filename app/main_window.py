@@ -142,6 +142,7 @@ class MainWindow(QMainWindow):
             self.views[0][1].view()          # the first tab is shown at once
         self.tree.point_chosen.connect(self._point_chosen)
         self.runs.run_chosen.connect(self._run_chosen)
+        ctx.run_selected.connect(self._run_selected_elsewhere)
         self.tabs.currentChanged.connect(lambda _: self._show_current())
         ctx.archive_changed.connect(self.reload)
         ctx.prefs_changed.connect(self._prefs_changed)
@@ -350,6 +351,15 @@ class MainWindow(QMainWindow):
 
     def _run_chosen(self, run_id: str) -> None:
         self.ctx.select_run(run_id)
+        self._show_current()
+
+    def _run_selected_elsewhere(self, run_id: str) -> None:
+        """A view picked a run (a click on a trend point): show it in the Run view."""
+        if self.runs.current_run() == run_id or not self.runs.select_run(run_id, emit=False):
+            return
+        for i in range(self.tabs.count()):
+            if self.tabs.tabText(i).replace("&", "") == "Run":
+                self.tabs.setCurrentIndex(i)
         self._show_current()
 
     def _show_current(self) -> None:

@@ -50,10 +50,8 @@ def render(out: Path, archive: Path | None = None, *, theme: str = "light") -> l
 
     from .context import AppContext, Preferences
     from .main_window import MainWindow
-    from .qtfix import guard_singletons
     from .theme import apply_theme
 
-    guard_singletons()
     app = QApplication.instance() or QApplication(sys.argv[:1])
     QStandardPaths.setTestModeEnabled(True)
     tmp = Path(tempfile.mkdtemp(prefix="shaftwatch-shots-"))

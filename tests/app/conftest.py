@@ -32,12 +32,8 @@ from pathlib import Path  # noqa: E402
 import pytest  # noqa: E402
 from PySide6.QtCore import QSettings, QStandardPaths  # noqa: E402
 
-from app.qtfix import guard_singletons  # noqa: E402
 from engine.archive import open_archive  # noqa: E402
 
-# PySide6 6.12 on Python 3.11 drops a reference to None on every void call (app/qtfix.py);
-# without the guard a long test session aborts with "none_dealloc".
-guard_singletons()
 QStandardPaths.setTestModeEnabled(True)  # nothing lands in the user's data folder
 
 P102_DE = "Demo Works/P-102/pump DE H"

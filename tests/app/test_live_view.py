@@ -34,9 +34,7 @@ POINT_H, POINT_V = f"{SITE}/{MACHINE}/pump DE H", f"{SITE}/{MACHINE}/pump DE V"
 @pytest.fixture
 def ctx(tmp_path, qapp, prefs):
     """A small archive of one machine with two points (the demo archive is not needed);
-    ``prefs`` (tests/app/conftest.py) keeps settings in a temporary file, and the
-    conftest also guards Python 3.11 against the Qt bindings' reference-count fault
-    (app/qtfix.py)."""
+    ``prefs`` (tests/app/conftest.py) keeps settings in a temporary file."""
     path = tmp_path / "test.shaftwatch"
     with create_archive(path, plant_name=SITE) as arc:
         arc.add_site(SITE)

@@ -271,15 +271,29 @@ def test_error_details_go_to_the_log_not_the_dialog(qtbot, tmp_path):
                 h.close()
 
 
-def test_singleton_guard_survives_many_qt_calls(qapp):
-    # PySide6 6.12 on Python 3.11 takes a reference to None on every void call
-    # (app/qtfix.py); the guard, applied in conftest, leaves far more than any session uses.
+def test_the_qt_bindings_keep_their_references(qapp):
+    # PySide6 6.12.0 on Python 3.11 dropped a reference to None on every C++ call that
+    # returns nothing, until Python aborted ("none_dealloc"); pyproject.toml excludes
+    # that release.  This catches a binding with the fault before a user meets it.
     import sys
 
     from PySide6.QtWidgets import QLabel
 
     label = QLabel()
+    before = sys.getrefcount(None)
     for i in range(20000):
         label.setText(str(i))
-    # Python 3.12+ reports immortal objects' count as 2**32 - 1 (PEP 683).
-    assert sys.getrefcount(None) > (2**59 if sys.version_info < (3, 12) else 2**31)
+    assert sys.getrefcount(None) >= before - 100, "this PySide6 release loses references"
+
+
+def test_a_run_picked_in_another_view_opens_in_the_run_view(main_window, app_context, qtbot):
+    point = "Demo Works/F-201/fan DE H"
+    assert main_window.select_point(point)
+    first = app_context.archive().runs(point)[0].run_id
+    for i in range(main_window.tabs.count()):
+        if main_window.tabs.tabText(i).replace("&", "") == "Trend":
+            main_window.tabs.setCurrentIndex(i)
+    app_context.select_run(first)            # what a click on a trend point does
+    assert main_window.tabs.tabText(main_window.tabs.currentIndex()).replace("&", "") == "Run"
+    assert main_window.runs.current_run() == first
+    assert app_context.run_id == first

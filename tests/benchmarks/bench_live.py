@@ -23,11 +23,8 @@ import numpy as np  # noqa: E402
 from PySide6.QtCore import QSettings  # noqa: E402
 from PySide6.QtWidgets import QApplication  # noqa: E402
 
-from app.qtfix import guard_singletons  # noqa: E402
 from tests.benchmarks._timing import best_of  # noqa: E402
 
-# PySide6 6.12 on Python 3.11 drops references to None/True/False (app/qtfix.py).
-guard_singletons()
 
 FS_HZ, LINES, ROWS, RUN_S = 51200.0, 3200, 300, 10.0
 DRAW_TARGET_MS, CPU_TARGET = 20.0, 0.5
