@@ -335,24 +335,37 @@ class TerminalProgress:
         Where to draw (default ``sys.stderr``).
     width : int
         Characters of the bar.
+    unit : str
+        What is counted, for the rate ("files", "runs").
+    label : callable(str) -> str, optional
+        The text shown after the bar (default: the file name of the text, 30 characters).
+    rate_from_first : bool
+        Count the rate from the first report's ``done`` (a resumed batch starts with
+        work done before it, which is no measure of the rate).
     """
 
-    def __init__(self, stream=None, *, width: int = 28):
+    def __init__(self, stream=None, *, width: int = 28, unit: str = "files",
+                 label=None, rate_from_first: bool = False):
         self.stream = stream or sys.stderr
         self.width = width
+        self.unit = unit
+        self.label = label or (lambda text: Path(text).name[:30])
+        self.rate_from_first = rate_from_first
+        self.first: int | None = None
         self.start = time.monotonic()
         self.drawn = False
 
-    def __call__(self, done: int, total: int, file: str) -> None:
+    def __call__(self, done: int, total: int, text: str) -> None:
+        if self.first is None:
+            self.first = done if self.rate_from_first else 0
         elapsed = max(time.monotonic() - self.start, 1e-9)
-        rate = done / elapsed
+        rate = (done - self.first) / elapsed
         left = (total - done) / rate if rate > 0 else math.inf
         filled = int(self.width * done / total) if total else self.width
         bar = "#" * filled + "-" * (self.width - filled)
         eta = "--:--" if not math.isfinite(left) else f"{int(left) // 60}:{int(left) % 60:02d}"
-        name = Path(file).name
-        line = f"[{bar}] {done}/{total}  {rate:.1f} files/s  {eta} left  {name[:30]}"
-        self.stream.write("\r" + line.ljust(100)[:100])
+        line = f"[{bar}] {done}/{total}  {rate:.1f} {self.unit}/s  {eta} left  {self.label(text)}"
+        self.stream.write("\r" + line.ljust(110)[:110])
         self.stream.flush()
         self.drawn = True
 

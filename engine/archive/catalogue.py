@@ -254,9 +254,14 @@ class Catalogue:
 
 
 def rows_equal(a: Mapping, b: Mapping) -> list[str]:
-    """Names of the columns in which two rows differ (NaN equals NaN)."""
+    """Names of the columns in which two rows differ (NaN equals NaN).
+
+    ``state`` is left out: it is the alarm evaluation's (values.h5), not the run file's.
+    """
     out = []
     for k in COLUMNS:
+        if k == "state":
+            continue
         x, y = a[k], b[k]
         if k in FLOAT_COLUMNS:
             if not (float(x) == float(y) or (math.isnan(float(x)) and math.isnan(float(y)))):

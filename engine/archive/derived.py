@@ -38,6 +38,7 @@ RESULTS_DIR, VALUES_FILE, EVENTS_FILE = "results", "values.h5", "events.h5"
 TEXT_COLUMNS = ("run_id", "point", "quality", "state", "zone", "worst_band", "plan_digest")
 EVENT_TEXT = ("point", "run_id", "band", "previous", "state", "acknowledged_by", "note")
 EVENT_FLOAT = ("time_s", "value", "level", "acknowledged_at")
+_NO_ROWS = np.zeros(0, dtype=np.intp)
 _SPECTRUM_ATTRS = ("unit", "scale", "window", "fmax_hz", "lines", "resolution_hz",
                    "enbw_hz", "fs_hz", "averages", "frame_length", "overlap", "averaging")
 
@@ -128,6 +129,7 @@ class ValueTable:
         self.cols: dict[str, np.ndarray] = {k: np.zeros(0, dtype=object) for k in TEXT_COLUMNS}
         self.cols["taken_s"] = np.zeros(0)
         self._index: dict[str, int] = {}
+        self._by_point: dict[str, np.ndarray] | None = None
 
     def __len__(self) -> int:
         return int(self.cols["run_id"].size)
@@ -137,6 +139,7 @@ class ValueTable:
 
     def _reindex(self) -> None:
         self._index = {rid: i for i, rid in enumerate(self.cols["run_id"])}
+        self._by_point = None
 
     def index(self, run_id: str) -> int | None:
         return self._index.get(run_id)
@@ -163,6 +166,7 @@ class ValueTable:
                 col[:n_old] = self.cols[k]
             grown[k] = col
         self.cols = grown
+        self._by_point = None
         nxt = n_old
         for r in rows:
             i = self._index.get(r.run_id)
@@ -178,9 +182,23 @@ class ValueTable:
                     self.cols[k][i] = r.values.get(k, math.nan)
 
     def rows_of(self, point: str) -> np.ndarray:
-        """Indices of ``point``'s rows in time order."""
-        idx = np.flatnonzero(self.cols["point"] == point)
-        return idx[np.argsort(self.cols["taken_s"][idx], kind="stable")]
+        """Indices of ``point``'s rows in time order (equal times in row order)."""
+        return self._groups().get(point, _NO_ROWS)
+
+    def _groups(self) -> dict[str, np.ndarray]:
+        """Row indices of every point, built once per change of the rows (a scan of the
+        whole table per point would cost more than the evaluation it serves)."""
+        if self._by_point is None:
+            pts, taken = self.cols["point"], self.cols["taken_s"]
+            groups: dict[str, np.ndarray] = {}
+            if pts.size:
+                names, inverse = np.unique(pts.astype(str), return_inverse=True)
+                order = np.lexsort((taken, inverse))          # stable: ties keep row order
+                ends = np.cumsum(np.bincount(inverse, minlength=names.size))
+                starts = np.concatenate(([0], ends[:-1]))
+                groups = {str(n): order[a:b] for n, a, b in zip(names, starts, ends)}
+            self._by_point = groups
+        return self._by_point
 
     def write(self, path: Path) -> None:
         tmp = path.with_name(path.name + TMP_SUFFIX)

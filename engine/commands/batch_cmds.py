@@ -8,56 +8,17 @@ done are kept; the same command continues).
 
 from __future__ import annotations
 
-import math
 import signal
 import sys
 import threading
-import time
 from contextlib import contextmanager
 
 from ..batch import WHATS, BatchSummary, reprocess
+from ..importer import TerminalProgress
 from .common import add_json_option, emit_json, print_table
 
 #: Exit status when Ctrl-C stopped the batch (as the command line does for Ctrl-C).
 CANCELLED_STATUS = 130
-
-
-class BatchProgress:
-    """A one-line progress bar for a batch: count, rate and time left.
-
-    Parameters
-    ----------
-    stream : file, optional
-        Where to draw (default ``sys.stderr``).
-    width : int
-        Characters of the bar.
-    """
-
-    def __init__(self, stream=None, *, width: int = 28):
-        self.stream = stream or sys.stderr
-        self.width = width
-        self.start = time.monotonic()
-        self.first: int | None = None
-        self.drawn = False
-
-    def __call__(self, done: int, total: int, text: str) -> None:
-        if self.first is None:           # runs done by a stopped batch are not a rate
-            self.first = done
-        elapsed = max(time.monotonic() - self.start, 1e-9)
-        rate = (done - self.first) / elapsed
-        left = (total - done) / rate if rate > 0 else math.inf
-        filled = int(self.width * done / total) if total else self.width
-        bar = "#" * filled + "-" * (self.width - filled)
-        eta = "--:--" if not math.isfinite(left) else f"{int(left) // 60}:{int(left) % 60:02d}"
-        line = f"[{bar}] {done}/{total}  {rate:.1f}/s  {eta} left  {text[-40:]}"
-        self.stream.write("\r" + line.ljust(110)[:110])
-        self.stream.flush()
-        self.drawn = True
-
-    def finish(self) -> None:
-        if self.drawn:
-            self.stream.write("\n")
-            self.stream.flush()
 
 
 @contextmanager
@@ -93,7 +54,8 @@ def run_reprocess(args) -> int:
                                   ("window", args.window), ("averages", args.averages),
                                   ("overlap", args.overlap)) if v is not None}
     stop = threading.Event()
-    bar = BatchProgress() if (args.progress or sys.stderr.isatty()) else None
+    bar = (TerminalProgress(unit="runs", label=lambda text: text[-40:], rate_from_first=True)
+           if (args.progress or sys.stderr.isatty()) else None)
     try:
         with stop_on_interrupt(stop):
             summary = reprocess(args.archive, what=args.what, run_ids=args.runs,
