@@ -17,6 +17,7 @@ from pathlib import Path
 from PySide6.QtCore import QObject, Signal
 from PySide6.QtGui import QIcon
 from PySide6.QtWidgets import QApplication, QFileDialog
+from pyqtgraph.util.garbage_collector import GarbageCollector
 
 from engine.archive import open_archive
 from engine.demo_archive import DEFAULT_NAME, build_demo_archive
@@ -90,6 +91,9 @@ class Shaftwatch(QObject):
         self.demo_job = None
         self.progress: dialogs.JobProgressDialog | None = None
         app.aboutToQuit.connect(self.jobs.stop_all)   # never leave a job's thread running
+        # Python's cyclic garbage collector runs on the GUI thread only (a timer): in a
+        # job's worker thread it could delete Qt objects, which deadlocks or crashes Qt.
+        self.garbage = GarbageCollector(interval=1.0)
 
     def start(self, archive: str | None) -> None:
         """Open ``archive``, else the last archive, else the demo archive."""

@@ -19,6 +19,7 @@ from pathlib import Path
 
 from PySide6.QtCore import QSettings, QStandardPaths
 from PySide6.QtWidgets import QApplication
+from pyqtgraph.util.garbage_collector import GarbageCollector
 
 SHOTS = (
     # (file, tab, point, what the view shows)
@@ -53,6 +54,7 @@ def render(out: Path, archive: Path | None = None, *, theme: str = "light") -> l
     from .theme import apply_theme
 
     app = QApplication.instance() or QApplication(sys.argv[:1])
+    garbage = GarbageCollector(interval=1.0)   # collect on the GUI thread only (app/main.py)
     QStandardPaths.setTestModeEnabled(True)
     tmp = Path(tempfile.mkdtemp(prefix="shaftwatch-shots-"))
     if archive is None:
@@ -83,6 +85,7 @@ def render(out: Path, archive: Path | None = None, *, theme: str = "light") -> l
         written.append(path)
     window.close()
     ctx.close()
+    garbage.timer.stop()
     return written
 
 

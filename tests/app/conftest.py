@@ -36,6 +36,22 @@ from engine.archive import open_archive  # noqa: E402
 
 QStandardPaths.setTestModeEnabled(True)  # nothing lands in the user's data folder
 
+
+@pytest.fixture(autouse=True)
+def collect_garbage_on_the_gui_thread():
+    """Python's cyclic garbage collector must not run in a job's worker thread: it may
+    delete Qt objects of an earlier test there, which deadlocks against the GUI thread
+    (seen: a worker in ``QObject::~QObject`` waiting for the GIL while the GUI thread
+    deleted widgets).  During a test it is off; it runs on this thread in between, as
+    the app's own timer does (app/main.py)."""
+    import gc
+
+    gc.collect()
+    gc.disable()
+    yield
+    gc.enable()
+    gc.collect()
+
 P102_DE = "Demo Works/P-102/pump DE H"
 
 
