@@ -12,8 +12,8 @@ The calling process opens the archive as its writer and holds the lock for the w
 batch.  It resolves each run into a small task (run file, results file, the point's
 setup computed once per point, the catalogue's time, speed and quality, the axial
 companion values) and hands tasks to workers: processes of a local pool (h5py holds
-one global lock, so processes, not threads; started with ``spawn``,
-:mod:`engine.batch_exec`), or tasks of a Dask distributed cluster when a scheduler address is given
+one global lock, so processes, not threads; forked from a clean fork server, or
+spawned where there is none, :mod:`engine.batch_exec`), or tasks of a Dask distributed cluster when a scheduler address is given
 (:mod:`engine.batch_dask`; the ``cluster`` extra, imported only then).  A worker reads
 the run file read-only, analyses it with :func:`engine.analysis.analyse_recording`
 exactly as :func:`engine.pipeline.analyse_run` does, writes the run's results file
