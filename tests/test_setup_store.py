@@ -79,6 +79,20 @@ def test_a_model_without_a_points_shaft_is_refused(tmp_path):
             arc.set_machine_model(SITE, "F-999", model_from_demo(FAN))
 
 
+def test_a_point_on_a_shaft_the_model_lacks_is_refused(tmp_path):
+    folder = tmp_path / "a.shaftwatch"
+    with fan_archive(folder) as arc:
+        arc.set_machine_model(SITE, FAN.tag, model_from_demo(FAN))
+        before = (folder / "plant.h5").read_bytes()
+        with pytest.raises(InputError, match=r"shaft 'pump' is not one of"):
+            arc.update_point(f"{SITE}/F-201/fan DE H", shaft="pump")
+        with pytest.raises(InputError, match=r"shaft 'pump' is not one of"):
+            arc.add_point(SITE, FAN.tag, "extra", shaft="pump")
+        assert (folder / "plant.h5").read_bytes() == before
+        arc.add_point(SITE, FAN.tag, "fan NDE H", shaft="fan")   # a shaft it has
+        assert arc.point_shaft(f"{SITE}/F-201/fan NDE H") == "fan"
+
+
 def test_bearing_list_round_trip(tmp_path):
     a = BearingGeometry("drive end", 9, 0.3126, 1.537, unit="in")
     b = BearingGeometry("fan", 11, 19.8, 104.0, 15.0)

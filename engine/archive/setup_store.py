@@ -98,6 +98,16 @@ class SetupStore:
 
         self._edit(change, machine=(site, tag))
 
+    def _check_shaft(self, site: str, tag: str, point: str, shaft: str | None) -> None:
+        """InputError when ``shaft`` is set and the machine's model lacks it."""
+        if not shaft:
+            return
+        model = self.machine_model(site, tag)
+        names = [s.name for s in model.shafts] if model is not None else []
+        if model is not None and shaft not in names:
+            raise InputError(f"point {point}: shaft {shaft!r} is not one of the machine "
+                             f"model's shafts ({', '.join(names)})")
+
     def point_shaft(self, point: str) -> str:
         """The shaft the point sits on: its ``shaft`` property, else the shaft of the
         model's bearing at the point's location, else ``""``."""

@@ -403,6 +403,7 @@ class Archive(SetupStore, DerivedStore):
         self.plant.machine(site, tag)
         values, patterns = point_props(props, what=f"point {path}",
                                        current_unit=props.get("unit") or "g")
+        self._check_shaft(site, tag, path, values.get("shaft"))
         key = point_key(site, tag, name, self.plant.keys())
         self._edit(lambda f: edit_add_point(f, path, values, patterns, key), machine=(site, tag))
         return self.plant.point(path)
@@ -412,6 +413,7 @@ class Archive(SetupStore, DerivedStore):
         current = self.plant.point(path)
         values, patterns = point_props(props, what=f"point {path}",
                                        current_unit=current.props["unit"])
+        self._check_shaft(current.site, current.machine, path, values.get("shaft"))
         self._edit(lambda f: edit_update_point(f, path, values, patterns),
                    machine=(current.site, current.machine))
         return self.plant.point(path)
