@@ -433,3 +433,27 @@ def test_spectrum_labels_with_a_model_file(tmp_path, capsys):
     assert main(base) == 0
     out = capsys.readouterr().out
     assert "gear mesh motor–output" in out and "sources" in out
+
+
+def test_envelope_geometry_of_an_archive_run_uses_the_points_shaft_speed(
+        demo_archive_path, capsys):
+    # F-201's fan turns at 890/1460 of the motor (belt drive): a fan bearing's BPFO is
+    # BPFO orders × fan speed, not × the run's stored motor speed (Harris & Kotzalas).
+    from engine.archive import open_archive
+    from engine.bearings import defect_frequencies_hz
+
+    fan = next(m for m in PLANT.machines if m.tag == "F-201")
+    point = fan.point("fan DE H")
+    with open_archive(demo_archive_path) as arc:
+        row = arc.runs(f"Demo Works/F-201/{point.name}")[-1]
+        ratio = arc.machine_model("Demo Works", "F-201").ratio("fan")
+    g = point.bearing
+    d = run_json(capsys, [
+        "envelope", "--archive", str(demo_archive_path), "--run", row.run_id,
+        "--elements", str(g.elements), "--element-diameter", str(g.element_diameter),
+        "--pitch-diameter", str(g.pitch_diameter),
+        "--contact-angle", str(g.contact_angle_deg)])
+    bpfo = next(x for x in d["defects"] if x["name"].lower().endswith("bpfo"))
+    expected = defect_frequencies_hz(g, row.rpm * ratio)["bpfo"]
+    assert bpfo["frequency_hz"] == pytest.approx(expected, rel=1e-9)
+    assert ratio < 0.7   # the fan is slower than the motor, so the check is not vacuous

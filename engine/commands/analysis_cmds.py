@@ -97,7 +97,14 @@ def run_envelope(args: argparse.Namespace) -> int:
     if geo is not None:
         if ch.rpm is None:
             raise InputError(f"{ch.source}: defect matching needs the shaft speed (--rpm)")
-        hz = defect_frequencies_hz(geo, ch.rpm)
+        shaft_rpm = ch.rpm
+        if getattr(args, "archive", None) and args.rpm is None:
+            # A run's stored speed is the reference shaft's; the bearing turns with the
+            # point's shaft (reference speed × its ratio in the machine model).
+            speed_ctx, _ = peak_labels.model_context(args, ch.rpm)
+            if speed_ctx is not None and speed_ctx.shaft_rpm:
+                shaft_rpm = speed_ctx.shaft_rpm
+        hz = defect_frequencies_hz(geo, shaft_rpm)
         targets = {k.upper(): hz[k] for k in DEFECTS}
         for m in defect_matches(res.spectrum, targets):
             defects.append({"name": m.name, "frequency_hz": m.frequency_hz,
