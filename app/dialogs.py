@@ -4,6 +4,7 @@ cautions and the list of keyboard shortcuts."""
 
 from __future__ import annotations
 
+import contextlib
 import logging
 import re
 
@@ -154,10 +155,8 @@ class JobProgressDialog(QProgressDialog):
         for sig, slot in ((self.job.progress, self._progress),
                           (self.job.finished, self._end), (self.job.failed, self._end),
                           (self.job.cancelled, self._end)):
-            try:
+            with contextlib.suppress(RuntimeError, TypeError):   # already disconnected
                 sig.disconnect(slot)
-            except (RuntimeError, TypeError):
-                pass                  # already disconnected
         self.close()
         self.deleteLater()
 

@@ -213,14 +213,11 @@ class MainWindow(QMainWindow):
         m = mb.addMenu("&File")
         self._act(m, "&Open archive…", self.choose_archive, shortcut=QKeySequence.StandardKey.Open,
                   tip="Open another plant archive folder")
-        self.import_action = None
-        if importlib.util.find_spec("app.import_dialog") is not None:
-            self.import_action = self._act(m, "&Import…", self.import_recordings,
-                                           shortcut="Ctrl+I",
-                                           tip="Import a folder of recordings into the archive")
-        if importlib.util.find_spec("app.report_dialog") is not None:
-            self._act(m, "&Export report…", self.export_report, shortcut="Ctrl+E",
-                      tip="Write a PDF report of a machine or a survey")
+        self.import_action = self._act(m, "&Import…", self.import_recordings,
+                                       shortcut="Ctrl+I",
+                                       tip="Import a folder of recordings into the archive")
+        self._act(m, "&Export report…", self.export_report, shortcut="Ctrl+E",
+                  tip="Write a PDF report of a machine or a survey")
         self._act(m, "&Reload archive", self.ctx.reload, shortcut="F5",
                   tip="Read the archive again (after another program wrote to it)")
         m.addSeparator()

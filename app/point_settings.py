@@ -5,6 +5,7 @@ they were; the panel offers to analyse the point's runs again."""
 
 from __future__ import annotations
 
+import contextlib
 import math
 
 from PySide6.QtCore import Qt, Signal
@@ -260,10 +261,8 @@ class PointSettings(QWidget):
         before = dict(self.ctx.archive().point(point).props)
         try:
             values = self.values()
-            try:
+            with contextlib.suppress(ValueError):     # text such as "100mV/g" stays text
                 values["sensitivity"] = float(values["sensitivity"])
-            except ValueError:
-                pass                                  # text such as "100mV/g"
             with self.ctx.writer("shaftwatch-gui point settings") as arc:
                 after = dict(arc.update_point(point, **values).props)
         except EngineError as exc:

@@ -75,25 +75,19 @@ class PointSetup:
 def point_setup(arc, path: str) -> PointSetup:
     """Read a point's setup from an open archive."""
     info = arc.point(path)
-    model, stored = None, False
-    getter = getattr(arc, "machine_model", None)
-    if getter is not None:
-        model = getter(info.site, info.machine)
-        stored = model is not None
+    model = arc.machine_model(info.site, info.machine)
+    stored = model is not None
     if model is None:
         ratios = arc.plant.machine(info.site, info.machine).ratios or {}
         if ratios:
             model = MachineModel(tuple(Shaft(name, float(r)) for name, r in ratios.items()))
-    shaft = ""
-    if hasattr(arc, "point_shaft"):
-        shaft = arc.point_shaft(path)
-    shaft = shaft or str(info.props.get("shaft") or "")
+    shaft = arc.point_shaft(path)
     ratio = 1.0
     if model is not None and shaft in model.ratios:
         ratio = model.ratio(shaft)
     else:
         shaft = ""
-    plan = arc.plan(path) if hasattr(arc, "plan") else None
+    plan = arc.plan(path)
     return PointSetup(path=path, site=info.site, machine=info.machine, props=dict(info.props),
                       model=model, model_stored=stored, shaft=shaft, shaft_ratio=ratio,
                       plan=plan)
@@ -302,7 +296,7 @@ def analyse_run(arc, point: str, run_id: str, settings: RunSettings, *, progress
     notes += spec.warnings
 
     step(2, "envelope spectrum")
-    results = arc.results(run_id) if hasattr(arc, "results") else None
+    results = arc.results(run_id)
     band, reused = settings.env_band_hz, False
     if band is None and results is not None:
         band = stored_band(results, settings)

@@ -3,47 +3,33 @@
 the history, re-analyse a point's runs after its settings changed, and learn levels
 from the first runs.  Each returns what changed so that the view can say so.
 
-The batch engine (``engine.batch``) is used when it offers the work
-(``apply_plan``, ``reprocess``); otherwise the same is done serially in one writer with
-:mod:`engine.pipeline`.  Either way the states are read before and after from the
-archive itself, so the summary shows what the archive now holds.
+Storing and re-evaluating go through the batch engine (``engine.batch.apply_plan``,
+``engine.batch.reprocess``); the states are read before and after from the archive
+itself, so the summary shows what the archive now holds.
 """
 
 from __future__ import annotations
 
-import importlib
 import math
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field, replace
 from datetime import UTC, datetime
 from pathlib import Path
 
-
+from engine import batch
 from engine.alarms.baseline import MIN_BASELINE_RUNS, baseline_plan
 from engine.alarms.plan import AlarmPlan
 from engine.archive import open_archive
 from engine.errors import InputError
-from engine.pipeline import Stopped, analyse_runs, evaluate_points, point_setup, remeasure
+from engine.pipeline import Stopped, point_setup, remeasure
 from engine.results import band_value_name
 
 from .jobs import Cancelled
 
 Progress = Callable[[int, int, str], None] | None
 Cancel = Callable[[], bool] | None
-GUI_COMMAND = "shaftwatch-gui setup"
 
 
-
-
-def batch_function(name: str):
-    """``engine.batch.<name>`` when the batch engine exists and offers it, else None."""
-    try:
-        module = importlib.import_module("engine.batch")
-    except ModuleNotFoundError as exc:
-        if exc.name == "engine.batch":
-            return None
-        raise
-    return getattr(module, name, None)
 
 
 @dataclass(frozen=True)
@@ -188,16 +174,9 @@ def apply_plan(archive_path: str | Path, points: list[str], plan: AlarmPlan, *,
     """
     points = list(dict.fromkeys(points))
     before = _read(archive_path, points)
-    fn = batch_function("apply_plan")
-    problems, notes = [], []
     try:
-        if fn is not None:
-            problems, notes = _batch_outcome(fn(archive_path, points, plan,
-                                                progress=progress, cancel=cancel))
-        else:
-            with open_archive(archive_path, mode="w", command=GUI_COMMAND) as arc:
-                arc.set_plans({p: plan for p in points})
-                evaluate_points(arc, points, progress=progress, cancel=cancel)
+        problems, notes = _batch_outcome(batch.apply_plan(archive_path, points, plan,
+                                                          progress=progress, cancel=cancel))
     except Stopped as exc:
         raise Cancelled(f"{exc}; the plan is stored, apply it again to finish the "
                         "re-evaluation") from None
@@ -217,25 +196,9 @@ def reprocess_points(archive_path: str | Path, points: list[str], *,
     """
     points = list(dict.fromkeys(points))
     before = _read(archive_path, points)
-    fn = batch_function("reprocess")
-    problems: list[dict] = []
-    notes: list[str] = []
     try:
-        if fn is not None:
-            problems, notes = _batch_outcome(fn(archive_path, what="analyse", points=points,
-                                                progress=progress, cancel=cancel))
-        else:
-            with open_archive(archive_path, mode="w", command=GUI_COMMAND) as arc:
-                ids = [r.run_id for p in points for r in arc.runs(p)]
-                total = len(ids) + len(points)
-
-                def step(done: int, _total: int, text: str) -> None:
-                    if progress is not None:
-                        progress(done, total, text)
-
-                _, problems = analyse_runs(arc, ids, progress=step, cancel=cancel)
-                evaluate_points(arc, points, cancel=cancel,
-                                progress=lambda d, t, text: step(len(ids) + d, t, text))
+        problems, notes = _batch_outcome(batch.reprocess(
+            archive_path, what="analyse", points=points, progress=progress, cancel=cancel))
     except Stopped as exc:
         raise Cancelled(f"{exc}; analyse again to finish") from None
     n = len(points)

@@ -41,19 +41,9 @@ def worst_state(states: Iterable[str]) -> str:
 
 
 def point_states_of(arc) -> dict[str, dict]:
-    """Point path → ``{"state", "zone", "overall_mm_s", "run_id", "taken_s"}``.
-
-    From ``arc.point_states()`` when the archive offers it, else from each point's latest
-    catalogue row (whose state may be empty: not evaluated).
-    """
-    getter = getattr(arc, "point_states", None)
-    if getter is not None:
-        return {p: dict(v) for p, v in getter().items()}
-    out = {}
-    for path, row in arc.latest_by_point().items():
-        out[path] = {"state": row.state or "", "zone": "", "overall_mm_s": row.velocity_rms_mm_s,
-                     "run_id": row.run_id, "taken_s": row.taken_s}
-    return out
+    """Point path → ``{"state", "zone", "overall_mm_s", "run_id", "taken_s", …}``
+    (``Archive.point_states``, copied so that the tree may keep it)."""
+    return {p: dict(v) for p, v in arc.point_states().items()}
 
 
 def dot_icon(colour: QColor, size: int = 12) -> QIcon:

@@ -113,7 +113,7 @@ def _envelope(x_g: np.ndarray, fs: float, source: str):
     from .envelope import envelope_spectrum
 
     for lines in ENVELOPE_LINES:
-        if 2.56 * lines / (2.56 * ENVELOPE_FMAX_HZ) * fs <= x_g.size:
+        if lines / ENVELOPE_FMAX_HZ * fs <= x_g.size:   # one frame, in samples at fs
             settings = SpectrumSettings(fmax_hz=ENVELOPE_FMAX_HZ, lines=lines, window="hann",
                                         scale="rms")
             try:

@@ -25,6 +25,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from .analysis import PointSetup, analyse_recording
+from .archive.derived import read_results_file
 from .errors import EngineError, InputError
 from .results import RunResults, band_value_name
 
@@ -212,7 +213,9 @@ def evaluate_points(arc, points: Iterable[str] | None = None, *, since_s: float 
             digest = plan.digest()
             stale = [rid for rid, d in zip(rows["run_id"], rows["plan_digest"]) if d != digest]
             if stale:
-                fresh = [remeasure(arc, arc.results(rid), setup) for rid in stale]
+                # The stored spectra only: no per-run band states are needed here.
+                fresh = [remeasure(arc, read_results_file(arc.results_file(rid)), setup)
+                         for rid in stale]
                 arc.store_results(fresh)
                 out.remeasured += len(fresh)
                 rows = arc.value_rows(point)

@@ -181,8 +181,7 @@ def test_run_files_missing_from_catalogue_are_merged(tmp_path):
         assert any("2 run(s) missing" in n for n in reader.notices)
     with h5py.File(tmp_path / "a" / "catalogue.h5", "r") as f:
         assert f["run_id"].shape == (3,)  # a reader changes nothing
-    with open_archive(tmp_path / "a", mode="w"):
-        pass
+    open_archive(tmp_path / "a", mode="w").close()
     with h5py.File(tmp_path / "a" / "catalogue.h5", "r") as f:
         assert f["run_id"].shape == (5,)
 
@@ -251,8 +250,7 @@ def test_migration_from_schema_0(tmp_path):
 
 
 def test_unknown_groups_and_attributes_survive_edits(tmp_path):
-    with new_archive(tmp_path / "a"):
-        pass
+    new_archive(tmp_path / "a").close()
     with h5py.File(tmp_path / "a" / "plant.h5", "r+") as f:
         g = f["sites/Works/machines/P-101/points/motor DE H/alarm_plan"]
         g.create_dataset("bands_hz", data=np.array([[10.0, 1000.0]]))
@@ -409,8 +407,7 @@ def test_temporaries_of_a_stopped_writer_are_ignored_and_cleaned(tmp_path):
     (tmp_path / "a" / "plant.h5.tmp").write_bytes(b"half")
     with open_archive(tmp_path / "a") as reader:
         assert reader.check() == [] and len(reader.runs()) == 1
-    with open_archive(tmp_path / "a", mode="w"):
-        pass
+    open_archive(tmp_path / "a", mode="w").close()
     assert not list((tmp_path / "a").rglob("*.tmp"))
 
 

@@ -72,8 +72,7 @@ def _complete_lines(text: str) -> list[list[str]]:
 @pytest.mark.filterwarnings("ignore::engine.errors.EngineWarning")
 def test_archive_survives_sigkill_at_random_moments(tmp_path):
     folder = tmp_path / "kill.shaftwatch"
-    with new_archive(folder, points=2):
-        pass
+    new_archive(folder, points=2).close()
     rnd = random.Random(20260803)
     runs: dict[str, str] = {}
     machines: set[str] = set()

@@ -37,8 +37,7 @@ def _holder(folder: Path) -> subprocess.Popen:
 
 
 def test_second_writer_is_refused_with_pid_host_and_command(tmp_path):
-    with new_archive(tmp_path / "a"):
-        pass
+    new_archive(tmp_path / "a").close()
     proc = _holder(tmp_path / "a")
     try:
         with pytest.raises(ArchiveError) as err:
@@ -54,8 +53,7 @@ def test_second_writer_is_refused_with_pid_host_and_command(tmp_path):
 
 
 def test_stale_lock_of_a_dead_process_is_taken_over(tmp_path):
-    with new_archive(tmp_path / "a"):
-        pass
+    new_archive(tmp_path / "a").close()
     proc = _holder(tmp_path / "a")
     proc.send_signal(signal.SIGKILL)
     proc.wait()
@@ -70,8 +68,7 @@ def test_stale_lock_of_a_dead_process_is_taken_over(tmp_path):
 
 
 def test_lock_of_another_host_needs_force(tmp_path):
-    with new_archive(tmp_path / "a"):
-        pass
+    new_archive(tmp_path / "a").close()
     (tmp_path / "a" / "writer.lock").write_text(json.dumps(
         {"pid": 1, "host": "survey-laptop", "started": "2026-08-03T08:00:00Z",
          "command": "shaftwatch import"}))
@@ -113,8 +110,7 @@ def test_a_closed_writer_gives_the_lock_back(tmp_path):
 def test_an_old_unreadable_lock_is_stale(tmp_path):
     # An empty lock file is one being written by a writer that has just created it;
     # once it is older than the grace time, it is a left-over and is taken over.
-    with new_archive(tmp_path / "a"):
-        pass
+    new_archive(tmp_path / "a").close()
     lock = tmp_path / "a" / "writer.lock"
     lock.write_text("")
     old = lock.stat().st_mtime - 60

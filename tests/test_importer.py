@@ -97,8 +97,7 @@ def test_unmapped_and_ambiguous_files_are_reported(tmp_path):
 def test_dry_run_writes_nothing(tmp_path):
     survey = tmp_path / "survey"
     _survey(survey)
-    with new_archive(tmp_path / "a"):
-        pass
+    new_archive(tmp_path / "a").close()
     before = _listing(tmp_path / "a")
     with open_archive(tmp_path / "a") as reader:  # a plan needs no writer
         plan = plan_import(reader, [survey], point=POINT)

@@ -312,6 +312,22 @@ _MEMORY_TYPES = {str: (h5py.string_dtype(), h5t.py_create(h5py.string_dtype())),
                  float: (np.dtype("<f8"), h5t.py_create(np.dtype("<f8")))}
 
 
+_NOT_READ = object()
+
+
+def _read_scalar(a, kind):
+    """A scalar attribute read straight into memory of its known type, or
+    ``_NOT_READ`` when its stored type does not allow that (h5py then reads it)."""
+    dtype, mtype = _MEMORY_TYPES[kind]
+    buf = np.zeros((), dtype=dtype)
+    try:
+        a.read(buf, mtype=mtype)
+    except (TypeError, ValueError, OSError):
+        return _NOT_READ
+    value = buf[()]
+    return value.decode("utf-8", "surrogateescape") if isinstance(value, bytes) else value
+
+
 def read_attrs(g: h5py.HLObject, kinds: dict[str, type], arrays: tuple[str, ...] = ()
                 ) -> tuple[dict, dict]:
     """Known scalar attributes of a group or dataset read straight into their type, and
@@ -328,18 +344,8 @@ def read_attrs(g: h5py.HLObject, kinds: dict[str, type], arrays: tuple[str, ...]
             a = h5a.open(gid, name.encode("utf-8"))
         except KeyError:
             continue
-        if a.shape == ():
-            dtype, mtype = _MEMORY_TYPES[kind]
-            buf = np.zeros((), dtype=dtype)
-            try:
-                a.read(buf, mtype=mtype)
-                value = buf[()]
-                known[name] = value.decode("utf-8", "surrogateescape") \
-                    if isinstance(value, bytes) else value
-                continue
-            except (TypeError, ValueError, OSError):
-                pass
-        known[name] = g.attrs[name]
+        value = _read_scalar(a, kind) if a.shape == () else _NOT_READ
+        known[name] = g.attrs[name] if value is _NOT_READ else value
     for name in arrays:
         if name in g.attrs:
             known[name] = g.attrs[name]
